@@ -1,0 +1,3 @@
+from readchan.cli import main
+
+main()
