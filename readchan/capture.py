@@ -1,0 +1,909 @@
+"""Capture I/O: load read-channel captures from audio or text files, and write them.
+
+A *capture* is a block of uniformly sampled values, one column per channel: the
+pickup-head voltage recorded by a sound card (WAV, FLAC, AIFF), a table exported
+by an oscilloscope or data logger (CSV, TSV, whitespace-separated text), or the
+logic-level output of a comparator stored in either form.
+
+Every problem with the input is reported as a :class:`~readchan.errors.CaptureError`
+(or :class:`~readchan.errors.ParameterError` for an absurd parameter) whose
+message is one line naming the file and the problem.  No exception of a library
+(``soundfile``, ``numpy``, the codec machinery) escapes.
+
+Text tables
+-----------
+The loader accepts what instruments commonly write:
+
+* comment lines starting with ``#``, ``;``, ``%`` or ``//`` and any other
+  non-numeric lines (metadata, a header) before the data;
+* the last non-numeric line before the data, when it has one name per column,
+  is the header: its names become ``channel_names`` and a unit in brackets or
+  parentheses (``CH1 (V)``, ``Volt [mV]``) becomes ``units``;
+* the delimiter (``;``, ``,``, tab or runs of whitespace) is detected from the
+  first data row; the decimal separator is ``.``; trailing empty fields (a
+  trailing delimiter) are ignored;
+* a first column of time in seconds (``ms``, ``us`` and ``ns`` are converted
+  when the header says so) gives the sample rate, fitted by least squares.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import secrets
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Iterator, Sequence
+
+import numpy as np
+import soundfile as sf
+
+from readchan.errors import CaptureError, ParameterError
+
+__all__ = [
+    "Capture",
+    "ClippingWarning",
+    "MIN_SAMPLES",
+    "TruncatedCaptureWarning",
+    "WRITE_KINDS",
+    "load_capture",
+    "write_capture",
+]
+
+#: Fewest samples a loaded capture may hold.
+MIN_SAMPLES = 16
+
+#: Kinds of file :func:`write_capture` can produce.
+WRITE_KINDS = ("wav16", "wav24", "wav-float", "flac", "csv")
+
+# kind -> (soundfile format, soundfile subtype); None for the text writer.
+_AUDIO_KINDS = {
+    "wav16": ("WAV", "PCM_16"),
+    "wav24": ("WAV", "PCM_24"),
+    "wav-float": ("WAV", "FLOAT"),
+    "flac": ("FLAC", "PCM_24"),
+}
+_CLIPPED_KINDS = ("wav16", "wav24", "flac")
+_FLAC_MAX_CHANNELS = 8
+
+_TEXT_SUFFIXES = {".csv", ".txt", ".tsv", ".dat", ".asc"}
+_AUDIO_SUFFIXES = {
+    ".wav", ".wave", ".flac", ".aif", ".aiff", ".aifc", ".ogg", ".oga",
+    ".w64", ".rf64", ".caf", ".au", ".snd",
+}
+_SUFFIX_KIND = {".wav": ("wav16", "wav24", "wav-float"), ".wave": ("wav16", "wav24", "wav-float"),
+                ".flac": ("flac",), ".csv": ("csv",), ".txt": ("csv",), ".tsv": ("csv",)}
+# Leading bytes of container formats: a file starting so is audio, never text.
+_AUDIO_MAGIC = (b"RIFF", b"RIFX", b"RF64", b"FORM", b"fLaC", b"OggS", b".snd", b"caff")
+
+_COMMENT_PREFIXES = ("#", ";", "%", "//")
+_SNIFF_BYTES = 1 << 16
+_MAX_LEADING_LINES = 10_000
+_RATE_TOLERANCE = 0.01          # relative disagreement allowed between two rates
+_UNIFORM_TOLERANCE = 0.5        # largest time residual allowed, in sample periods
+_CSV_CHUNK_ROWS = 65_536
+
+_UNIT_RE = re.compile(r"^(.*?)\s*[\(\[]\s*([^\)\]]*?)\s*[\)\]]\s*$")
+_TIME_SUFFIX_RE = re.compile(r"^(?:time|t)[_\s-]?(s|sec|ms|us|µs|μs|ns)$")
+_TIME_NAMES = {"t", "s", "sec", "secs", "second", "seconds", "time", "times"}
+_TIME_SCALE = {"s": 1.0, "sec": 1.0, "secs": 1.0, "ms": 1e-3, "us": 1e-6,
+               "µs": 1e-6, "μs": 1e-6, "ns": 1e-9}
+# Column names that are themselves a unit: canonical spelling.
+_UNIT_NAMES = {"v": "V", "volt": "V", "volts": "V", "mv": "mV", "uv": "uV", "µv": "µV",
+               "a": "A", "ma": "mA", "fs": "FS"}
+
+
+class TruncatedCaptureWarning(UserWarning):
+    """An audio file holds less sample data than its header declares; what is present was loaded."""
+
+
+class ClippingWarning(UserWarning):
+    """Samples outside -1..1 were clipped while writing an integer-PCM file."""
+
+
+# --------------------------------------------------------------------------- helpers
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def _err(source: str, problem: str) -> CaptureError:
+    return CaptureError(_one_line(f"{source}: {problem}"))
+
+
+def _show(text: str, limit: int = 40) -> str:
+    """Quote a piece of the user's file for a message, shortened to one line."""
+    text = _one_line(text)
+    if len(text) > limit:
+        text = text[: limit - 3] + "..."
+    return repr(text)
+
+
+def _check_rate(rate_hz: object, what: str = "rate_hz") -> float:
+    if isinstance(rate_hz, bool):
+        raise ParameterError(f"{what} must be a number of hertz, not {rate_hz!r}")
+    try:
+        rate = float(rate_hz)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        raise ParameterError(_one_line(f"{what} must be a number of hertz, not {rate_hz!r}")) from None
+    if not math.isfinite(rate) or rate <= 0.0:
+        raise ParameterError(f"{what} must be finite and > 0 Hz, got {rate!r}")
+    return rate
+
+
+def _default_names(n: int) -> tuple[str, ...]:
+    return tuple(f"ch{i}" for i in range(n))
+
+
+def _first_nonfinite(samples: np.ndarray) -> tuple[int, int] | None:
+    bad = ~np.isfinite(samples)
+    if not bad.any():
+        return None
+    row, col = np.argwhere(bad)[0]
+    return int(row), int(col)
+
+
+def _rates_disagree(a: float, b: float) -> bool:
+    return abs(a - b) > _RATE_TOLERANCE * b
+
+
+# --------------------------------------------------------------------------- Capture
+
+
+@dataclass(frozen=True, eq=False)
+class Capture:
+    """A uniformly sampled, possibly multi-channel capture.
+
+    Parameters
+    ----------
+    samples : numpy.ndarray
+        Values, shape ``(n_samples, n_channels)``; stored as a read-only,
+        C-contiguous float64 array (a 1-D array is taken as one channel).
+        Audio files give full scale (-1..1); text tables give their own units.
+    rate_hz : float
+        Sample rate in hertz, finite and > 0.
+    source : str
+        Where the capture came from: the path as the user gave it.
+    units : str
+        Unit of the values: ``'FS'`` (full scale) for audio files, otherwise
+        the table's unit (``'V'`` when it names none).
+    channel_names : tuple of str
+        One name per channel; ``('ch0', 'ch1', ...)`` when left empty.
+
+    Raises
+    ------
+    CaptureError
+        If the samples are not 1-D or 2-D, are empty, or hold NaN/Inf, or if
+        the number of names does not match the number of channels.
+    ParameterError
+        If ``rate_hz`` is not finite and > 0.
+
+    Notes
+    -----
+    ``samples`` is a read-only view (no copy is made when the input already
+    is C-contiguous float64), so a capture cannot be changed through it; take
+    ``capture.channel(i).copy()`` to work on values in place.
+    """
+
+    samples: np.ndarray
+    rate_hz: float
+    source: str = "<memory>"
+    units: str = "V"
+    channel_names: tuple[str, ...] = field(default=())
+
+    def __post_init__(self) -> None:
+        source = str(self.source)
+        try:
+            samples = np.ascontiguousarray(self.samples, dtype=np.float64)
+        except (TypeError, ValueError):
+            raise _err(source, "samples are not numeric") from None
+        if samples.ndim == 1:
+            samples = samples.reshape(-1, 1)
+        if samples.ndim != 2:
+            raise _err(source, f"samples must have shape (n_samples, n_channels), got {samples.shape}")
+        if samples.shape[0] == 0 or samples.shape[1] == 0:
+            raise _err(source, f"samples are empty (shape {samples.shape})")
+        bad = _first_nonfinite(samples)
+        if bad is not None:
+            raise _err(source, f"sample {bad[0]} of channel {bad[1]} is {samples[bad]!r}, not a finite number")
+        samples = samples.view()          # our own read-only handle; the base is not touched
+        samples.setflags(write=False)
+        names = tuple(str(n) for n in self.channel_names) or _default_names(samples.shape[1])
+        if len(names) != samples.shape[1]:
+            raise _err(source, f"{len(names)} channel names given for {samples.shape[1]} channels")
+        object.__setattr__(self, "samples", samples)
+        object.__setattr__(self, "rate_hz", _check_rate(self.rate_hz))
+        object.__setattr__(self, "source", source)
+        object.__setattr__(self, "units", str(self.units))
+        object.__setattr__(self, "channel_names", names)
+
+    @property
+    def n_samples(self) -> int:
+        """Number of samples per channel."""
+        return int(self.samples.shape[0])
+
+    @property
+    def n_channels(self) -> int:
+        """Number of channels."""
+        return int(self.samples.shape[1])
+
+    @property
+    def duration_s(self) -> float:
+        """Duration in seconds: ``n_samples / rate_hz``."""
+        return self.n_samples / self.rate_hz
+
+    def channel(self, index: int) -> np.ndarray:
+        """Return one channel as a 1-D float64 view (read-only).
+
+        Parameters
+        ----------
+        index : int
+            Channel number, ``0 <= index < n_channels``.
+
+        Returns
+        -------
+        numpy.ndarray
+            The channel's samples, shape ``(n_samples,)``.
+
+        Raises
+        ------
+        CaptureError
+            If ``index`` is not an integer in the valid range.
+        """
+        if isinstance(index, (bool, np.bool_)) or not isinstance(index, (int, np.integer)):
+            raise _err(self.source, f"channel index must be an integer, not {index!r}")
+        if not 0 <= index < self.n_channels:
+            raise _err(self.source, f"channel {index} does not exist; valid channels are 0..{self.n_channels - 1}")
+        return self.samples[:, int(index)]
+
+    def __repr__(self) -> str:
+        return (f"Capture(source={self.source!r}, n_samples={self.n_samples}, n_channels={self.n_channels}, "
+                f"rate_hz={self.rate_hz!r}, units={self.units!r}, channel_names={self.channel_names!r})")
+
+
+# --------------------------------------------------------------------------- loading
+
+
+def load_capture(path: str | Path, *, rate_hz: float | None = None,
+                 time_column: bool | None = None) -> Capture:
+    """Load a capture from an audio file or a text table.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        The file.  ``.csv``, ``.txt``, ``.tsv``, ``.dat`` and ``.asc`` are read
+        as text; anything else is tried as audio (WAV of any subtype, FLAC,
+        AIFF, ...) and, failing that, as text.
+    rate_hz : float, optional
+        Sample rate in hertz.  Required for a text table without a time
+        column.  When the file carries its own rate (an audio header or a time
+        column) the two must agree within 1 % and ``rate_hz`` is used.
+    time_column : bool, optional
+        For text tables: whether the first column is time.  ``None`` (the
+        default) detects it: a header naming it time (``time``, ``t``, ``s``,
+        ``sec``, ``Time (ms)`` ...), or, with no header and no ``rate_hz``, a
+        strictly increasing first column when there are at least two columns.
+
+    Returns
+    -------
+    Capture
+        float64 samples of shape ``(n_samples, n_channels)``; ``units`` is
+        ``'FS'`` for audio.
+
+    Raises
+    ------
+    CaptureError
+        If the file is missing, a directory, empty, unreadable, truncated
+        inside its header, not uniformly sampled, ill-formed, holds NaN/Inf or
+        fewer than :data:`MIN_SAMPLES` samples.
+    ParameterError
+        If ``rate_hz`` is given but not finite and > 0.
+
+    Warns
+    -----
+    TruncatedCaptureWarning
+        If a WAV file holds less data than its header declares; the complete
+        samples present are loaded.
+    """
+    source = str(path)
+    if rate_hz is not None:
+        rate_hz = _check_rate(rate_hz)
+    if time_column not in (None, True, False):
+        raise ParameterError(f"time_column must be True, False or None, not {time_column!r}")
+    p = Path(path)
+    try:
+        if not p.exists():
+            raise _err(source, "no such file")
+        if p.is_dir():
+            raise _err(source, "is a directory, not a capture file")
+        size = p.stat().st_size
+        if size == 0:
+            raise _err(source, "file is empty")
+        with open(p, "rb") as fh:
+            head = fh.read(_SNIFF_BYTES)
+    except OSError as exc:
+        raise _err(source, f"cannot read file ({exc.strerror or exc})") from None
+
+    suffix = p.suffix.lower()
+    if suffix in _TEXT_SUFFIXES and not head.startswith(_AUDIO_MAGIC):
+        return _load_text(p, source, head, rate_hz, time_column)
+
+    try:
+        return _load_audio(p, source, rate_hz)
+    except _NotAudio as not_audio:
+        if head.startswith(_AUDIO_MAGIC):
+            cut = " it is truncated inside its header;" if _riff_cut_short(head, size) else ""
+            raise _err(source, f"not a readable audio file:{cut} {not_audio.reason}") from None
+        if _text_encoding(head) is None:
+            raise _err(source, f"neither a readable audio file ({not_audio.reason}) nor a text table") from None
+        return _load_text(p, source, head, rate_hz, time_column)
+
+
+class _NotAudio(Exception):
+    def __init__(self, reason: str) -> None:
+        super().__init__(reason)
+        self.reason = reason
+
+
+def _soundfile_reason(exc: BaseException) -> str:
+    reason = getattr(exc, "error_string", None) or str(exc)
+    reason = _one_line(reason).strip().rstrip(".")
+    return reason or type(exc).__name__
+
+
+def _load_audio(p: Path, source: str, rate_hz: float | None) -> Capture:
+    try:
+        with sf.SoundFile(str(p)) as snd:
+            file_rate = float(snd.samplerate)
+            data = snd.read(dtype="float64", always_2d=True)
+    except (sf.SoundFileError, RuntimeError, TypeError) as exc:
+        raise _NotAudio(_soundfile_reason(exc)) from None
+    except (OSError, ValueError, EOFError) as exc:
+        raise _err(source, f"cannot read audio data ({_soundfile_reason(exc)})") from None
+
+    truncated = _wav_truncation(p)
+    note = ""
+    if truncated is not None:
+        declared, present = truncated
+        note = " (the file is truncated)"
+        warnings.warn(_one_line(
+            f"{source}: file is truncated: its header declares {declared} bytes of sample data but only "
+            f"{present} are present; loaded the {data.shape[0]} complete samples"),
+            TruncatedCaptureWarning, stacklevel=3)
+    if data.shape[0] < MIN_SAMPLES:
+        raise _err(source, f"holds {data.shape[0]} samples{note}; at least {MIN_SAMPLES} are needed")
+    if file_rate <= 0:
+        raise _err(source, f"header gives an invalid sample rate {file_rate:g} Hz")
+    if rate_hz is not None and _rates_disagree(file_rate, rate_hz):
+        raise _err(source, f"file header says {file_rate:g} Hz but the given rate is {rate_hz:g} Hz "
+                           f"(more than 1 % apart)")
+    bad = _first_nonfinite(data)
+    if bad is not None:
+        raise _err(source, f"sample {bad[0]} of channel {bad[1]} is {data[bad]!r}, not a finite number")
+    return Capture(samples=np.ascontiguousarray(data), rate_hz=rate_hz or file_rate, source=source,
+                   units="FS", channel_names=_default_names(data.shape[1]))
+
+
+def _riff_cut_short(head: bytes, size: int) -> bool:
+    """True if a RIFF file is shorter than its own header says."""
+    if not head.startswith(b"RIFF") or size < 8:
+        return size < 12
+    return size < int.from_bytes(head[4:8], "little") + 8
+
+
+def _wav_truncation(p: Path) -> tuple[int, int] | None:
+    """Return (declared, present) bytes of a RIFF/WAVE data chunk cut short, else None."""
+    try:
+        size = p.stat().st_size
+        with open(p, "rb") as fh:
+            if fh.read(4) != b"RIFF":
+                return None
+            fh.read(4)
+            if fh.read(4) != b"WAVE":
+                return None
+            offset = 12
+            for _ in range(10_000):
+                hdr = fh.read(8)
+                if len(hdr) < 8:
+                    return None
+                chunk_id, chunk_size = hdr[:4], int.from_bytes(hdr[4:], "little")
+                if chunk_id == b"data":
+                    present = size - (offset + 8)
+                    if chunk_size != 0xFFFFFFFF and chunk_size > present:
+                        return chunk_size, max(present, 0)
+                    return None
+                offset += 8 + chunk_size + (chunk_size & 1)
+                fh.seek(offset)
+    except OSError:
+        return None
+    return None
+
+
+# ---- text tables
+
+
+def _text_encoding(head: bytes) -> str | None:
+    """Guess the encoding of a text file from its first bytes; None if it looks binary."""
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return "utf-16"
+    if head.startswith(b"\xef\xbb\xbf"):
+        return "utf-8-sig"
+    if b"\x00" in head:
+        return None
+    try:
+        head.decode("utf-8")
+        return "utf-8"
+    except UnicodeDecodeError as exc:
+        if exc.start >= len(head) - 4 and len(head) == _SNIFF_BYTES:
+            return "utf-8"          # a character cut by the sniff window
+        return "latin-1"
+
+
+def _is_comment(stripped: str) -> bool:
+    return stripped.startswith(_COMMENT_PREFIXES)
+
+
+def _detect_delimiter(line: str) -> str | None:
+    for delim in (";", ",", "\t"):
+        if delim in line:
+            return delim
+    return None
+
+
+def _split(line: str, delim: str | None) -> list[str]:
+    fields = [f.strip().strip('"').strip("'").strip() for f in line.strip().split(delim)]
+    return fields
+
+
+def _strip_trailing_empty(fields: list[str]) -> tuple[list[str], int]:
+    n = len(fields)
+    while n > 0 and fields[n - 1] == "":
+        n -= 1
+    return fields[:n], len(fields) - n
+
+
+def _numeric(fields: Sequence[str]) -> bool:
+    if not fields:
+        return False
+    try:
+        for f in fields:
+            float(f)
+    except ValueError:
+        return False
+    return True
+
+
+def _parse_name(name: str) -> tuple[str, str | None]:
+    """Split a header name into (name, unit) for 'CH1 (V)' or 'Volt [mV]'."""
+    m = _UNIT_RE.match(name)
+    if m and m.group(2):
+        return (m.group(1).strip() or m.group(2)), m.group(2)
+    return name.strip(), None
+
+
+def _time_scale(name: str, unit: str | None) -> float | None | str:
+    """Seconds per unit of a time-like column; None if not a time name; the unit string if unknown."""
+    low = name.strip().lower()
+    m = _TIME_SUFFIX_RE.match(low)
+    if m:
+        return _TIME_SCALE[m.group(1)]
+    if unit is not None and unit.strip().lower() in _TIME_SCALE:
+        return _TIME_SCALE[unit.strip().lower()]
+    if low in _TIME_NAMES or low.startswith("time"):
+        if unit is None:
+            return 1.0
+        return unit
+    return None
+
+
+def _merge_unit_tokens(fields: list[str]) -> list[str]:
+    """For whitespace-separated headers: glue '(V)' / '[mV]' tokens onto the name before them."""
+    out: list[str] = []
+    for f in fields:
+        if out and f[:1] in "([" and f[-1:] in ")]":
+            out[-1] = f"{out[-1]} {f}"
+        else:
+            out.append(f)
+    return out
+
+
+@dataclass(frozen=True)
+class _Layout:
+    encoding: str
+    skip_lines: int            # physical lines before the first data row
+    first_data_line: int       # 1-based line number of the first data row
+    delimiter: str | None
+    n_fields: int              # real (non-empty) fields per row
+    n_trailing: int            # empty trailing fields per row
+    header: tuple[str, ...] | None
+
+
+def _scan_layout(p: Path, source: str, encoding: str) -> _Layout:
+    """Read the leading comment/header lines and the first data row."""
+    candidates: list[str] = []
+    with open(p, encoding=encoding, newline=None) as fh:
+        for lineno, raw in enumerate(fh, start=1):
+            if lineno > _MAX_LEADING_LINES:
+                raise _err(source, f"no numeric data in the first {_MAX_LEADING_LINES} lines")
+            stripped = raw.strip()
+            if not stripped or _is_comment(stripped):
+                continue
+            delim = _detect_delimiter(stripped)
+            fields, n_trailing = _strip_trailing_empty(_split(stripped, delim))
+            if _numeric(fields):
+                header = None
+                if candidates:
+                    names, _ = _strip_trailing_empty(_split(candidates[-1], delim))
+                    if delim is None:
+                        names = _merge_unit_tokens(names)
+                    if len(names) == len(fields):
+                        header = tuple(names)
+                return _Layout(encoding, lineno - 1, lineno, delim, len(fields), n_trailing, header)
+            candidates.append(stripped)
+    raise _err(source, "no numeric data found (not a capture table)")
+
+
+def _iter_data_lines(p: Path, layout: _Layout) -> Iterator[tuple[int, str]]:
+    """Yield (line number, content) for every data row, comments and blank lines left out."""
+    with open(p, encoding=layout.encoding, newline=None, errors="replace") as fh:
+        for lineno, raw in enumerate(fh, start=1):
+            if lineno <= layout.skip_lines:
+                continue
+            stripped = raw.strip()
+            if not stripped or _is_comment(stripped):
+                continue
+            stripped = stripped.split("#", 1)[0].strip()
+            if stripped:
+                yield lineno, stripped
+
+
+def _diagnose(p: Path, source: str, layout: _Layout) -> CaptureError:
+    """Find the first ill-formed row of a table that numpy refused, and describe it."""
+    expected = layout.n_fields + layout.n_trailing
+    for lineno, line in _iter_data_lines(p, layout):
+        fields = _split(line, layout.delimiter)
+        if len(fields) != expected:
+            return _err(source, f"line {lineno} has {len(fields)} fields, expected {expected} "
+                                f"like line {layout.first_data_line}")
+        for col, text in enumerate(fields[:layout.n_fields], start=1):
+            if text == "":
+                return _err(source, f"line {lineno} has an empty value in column {col}")
+            try:
+                value = float(text)
+            except ValueError:
+                return _err(source, f"line {lineno}, column {col}: {_show(text)} is not a number")
+            if not math.isfinite(value):
+                return _err(source, f"line {lineno}, column {col}: value {_show(text)} is not finite")
+        if any(f != "" for f in fields[layout.n_fields:]):
+            return _err(source, f"line {lineno} has more values than line {layout.first_data_line}")
+    return _err(source, "table could not be parsed as numbers")
+
+
+def _line_of_row(p: Path, layout: _Layout, row: int) -> int:
+    for k, (lineno, _) in enumerate(_iter_data_lines(p, layout)):
+        if k == row:
+            return lineno
+    return -1
+
+
+def _read_table(p: Path, source: str, layout: _Layout) -> np.ndarray:
+    """Parse the data rows with numpy (vectorised); describe the first bad row on failure."""
+    converters = None
+    if layout.n_trailing:
+        # Trailing delimiters: the extra fields must be empty; anything else marks the row.
+        def empty_field(text: str) -> float:
+            return 0.0 if not text.strip() else math.nan
+        converters = {layout.n_fields + j: empty_field for j in range(layout.n_trailing)}
+    common = dict(delimiter=layout.delimiter, skiprows=layout.skip_lines, ndmin=2,
+                  dtype=np.float64, converters=converters)
+    attempts = (
+        dict(comments="#", quotechar='"'),
+        dict(comments=["#", "//", "%"] + ([";"] if layout.delimiter != ";" else []), quotechar=None),
+    )
+    data = None
+    encoding = layout.encoding
+    for attempt in attempts:
+        for enc in (encoding, "latin-1"):
+            try:
+                data = np.loadtxt(p, encoding=enc, **common, **attempt)
+                break
+            except UnicodeError:
+                if enc == "latin-1":
+                    raise _err(source, "cannot decode the text") from None
+                encoding = "latin-1"
+                continue
+            except (ValueError, IndexError):
+                break
+            except OSError as exc:
+                raise _err(source, f"cannot read file ({exc.strerror or exc})") from None
+        if data is not None:
+            break
+    layout = _Layout(encoding, layout.skip_lines, layout.first_data_line, layout.delimiter,
+                     layout.n_fields, layout.n_trailing, layout.header)
+    if data is None:
+        raise _diagnose(p, source, layout)
+    if data.shape[1] != layout.n_fields + layout.n_trailing:
+        raise _diagnose(p, source, layout)
+    if not np.isfinite(data).all():
+        raise _diagnose(p, source, layout)
+    return np.ascontiguousarray(data[:, :layout.n_fields])
+
+
+def _load_text(p: Path, source: str, head: bytes, rate_hz: float | None,
+               time_column: bool | None) -> Capture:
+    encoding = _text_encoding(head)
+    if encoding is None:
+        raise _err(source, "is a binary file, not a readable audio file or text table")
+    try:
+        layout = _scan_layout(p, source, encoding)
+    except UnicodeError:
+        layout = _scan_layout(p, source, "latin-1")
+    except OSError as exc:
+        raise _err(source, f"cannot read file ({exc.strerror or exc})") from None
+
+    names: list[str] = []
+    units: list[str | None] = []
+    if layout.header is not None:
+        for raw_name in layout.header:
+            name, unit = _parse_name(raw_name)
+            names.append(name)
+            units.append(unit)
+
+    # Is the first column time?
+    scale: float | None = None
+    if layout.header is not None:
+        found = _time_scale(names[0], units[0])
+        if isinstance(found, str):
+            if time_column is not False:
+                raise _err(source, f"time column unit {found!r} is not understood (expected s, ms, us or ns)")
+        elif found is not None and time_column is not False:
+            scale = found
+        elif time_column:
+            scale = 1.0
+    has_time = scale is not None
+    if not has_time and time_column:
+        has_time, scale = True, 1.0
+
+    data = _read_table(p, source, layout)
+    n_rows = data.shape[0]
+    if n_rows < MIN_SAMPLES:
+        raise _err(source, f"holds {n_rows} samples; at least {MIN_SAMPLES} are needed")
+
+    if (layout.header is None and time_column is None and rate_hz is None
+            and data.shape[1] >= 2 and bool(np.all(np.diff(data[:, 0]) > 0))):
+        has_time, scale = True, 1.0
+
+    if has_time:
+        if data.shape[1] < 2:
+            raise _err(source, "has a time column but no value columns")
+        times = data[:, 0] * (scale or 1.0)
+        fitted = _fit_rate(p, source, layout, times)
+        if rate_hz is not None and _rates_disagree(fitted, rate_hz):
+            raise _err(source, f"time column gives {fitted:.6g} Hz but the given rate is {rate_hz:.6g} Hz "
+                               f"(more than 1 % apart)")
+        rate = rate_hz if rate_hz is not None else fitted
+        values = np.ascontiguousarray(data[:, 1:])
+        value_names, value_units = names[1:], units[1:]
+    else:
+        if rate_hz is None:
+            if data.shape[1] == 1:
+                raise _err(source, "has a single column and no time column; pass --rate to give the sample rate")
+            raise _err(source, "has no time column (the first column is not named time and is not increasing); "
+                               "pass --rate to give the sample rate")
+        rate = rate_hz
+        values = data
+        value_names, value_units = names, units
+
+    channel_names = tuple(n or f"ch{i}" for i, n in enumerate(value_names)) or _default_names(values.shape[1])
+    return Capture(samples=values, rate_hz=rate, source=source,
+                   units=_table_units(value_names, value_units), channel_names=channel_names)
+
+
+def _table_units(names: Sequence[str], units: Sequence[str | None]) -> str:
+    found: list[str] = []
+    for name, unit in zip(names, units):
+        if unit:
+            found.append(unit)
+        elif name.strip().lower() in _UNIT_NAMES:
+            found.append(_UNIT_NAMES[name.strip().lower()])
+        else:
+            found.append("V")
+    distinct = list(dict.fromkeys(found))
+    if not distinct:
+        return "V"
+    return distinct[0] if len(distinct) == 1 else ",".join(found)
+
+
+def _fit_rate(p: Path, source: str, layout: _Layout, times: np.ndarray) -> float:
+    """Fit t = t0 + i*dt by least squares; require every residual within half a period."""
+    n = times.shape[0]
+    i = np.arange(n, dtype=np.float64)
+    i_mean = (n - 1) / 2.0
+    t_mean = float(times.mean())
+    di = i - i_mean
+    dt = float(np.dot(di, times - t_mean) / np.dot(di, di))
+    if not math.isfinite(dt) or dt <= 0.0:
+        raise _err(source, "time column is not increasing")
+    residual = times - (t_mean + di * dt)
+    worst = int(np.argmax(np.abs(residual)))
+    if abs(residual[worst]) > _UNIFORM_TOLERANCE * dt:
+        line = _line_of_row(p, layout, worst)
+        raise _err(source, f"time column is not uniformly sampled (largest deviation "
+                           f"{abs(residual[worst]):.3g} s at row {worst + 1}, line {line})")
+    return 1.0 / dt
+
+
+# --------------------------------------------------------------------------- writing
+
+
+def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind: str = "wav16",
+                  force: bool = False, channel_names: Sequence[str] | None = None) -> Path:
+    """Write samples to an audio file or a CSV table, atomically.
+
+    The data go to a temporary file in the target's directory which is then
+    renamed into place, so a failure never leaves half a file behind nor
+    destroys an existing one.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        Target file.
+    samples : numpy.ndarray
+        Shape ``(n_samples,)`` for one channel or ``(n_samples, n_channels)``;
+        finite values.  Audio kinds take full scale (-1..1).
+    rate_hz : float
+        Sample rate in hertz, finite and > 0; an integer (within 1 ppm) for
+        audio kinds.
+    kind : {'wav16', 'wav24', 'wav-float', 'flac', 'csv'}
+        ``wav16``/``wav24``: integer PCM WAV; ``wav-float``: 32-bit float WAV;
+        ``flac``: 24-bit FLAC; ``csv``: header ``time_s,ch0,...`` then one row
+        per sample (time with 12 significant digits, values with 9).
+    force : bool
+        Replace an existing file.
+    channel_names : sequence of str, optional
+        Column names for ``csv`` (default ``ch0``, ``ch1``, ...).
+
+    Returns
+    -------
+    pathlib.Path
+        The path written.
+
+    Raises
+    ------
+    ParameterError
+        For an unknown kind, a kind that contradicts the file extension, a bad
+        rate, samples of the wrong shape or holding NaN/Inf, or bad names.
+    CaptureError
+        If the file exists and ``force`` is false, or it cannot be written.
+
+    Warns
+    -----
+    ClippingWarning
+        If integer-PCM kinds had to clip values outside -1..1.
+    """
+    target = Path(path)
+    source = str(path)
+    if kind not in WRITE_KINDS:
+        raise ParameterError(f"unknown capture kind {kind!r}; choose one of {', '.join(WRITE_KINDS)}")
+    allowed = _SUFFIX_KIND.get(target.suffix.lower())
+    if allowed is not None and kind not in allowed:
+        raise ParameterError(f"{source}: kind {kind!r} does not match the extension {target.suffix!r}")
+    rate = _check_rate(rate_hz)
+    try:
+        data = np.array(samples, dtype=np.float64, order="C", copy=True)
+    except (TypeError, ValueError):
+        raise ParameterError("samples must be numeric") from None
+    if data.ndim == 1:
+        data = data.reshape(-1, 1)
+    if data.ndim != 2 or data.shape[0] == 0 or data.shape[1] == 0:
+        raise ParameterError(f"samples must have shape (n_samples,) or (n_samples, n_channels) "
+                             f"with at least one of each, got {np.shape(samples)}")
+    bad = _first_nonfinite(data)
+    if bad is not None:
+        raise ParameterError(f"samples must be finite; sample {bad[0]} of channel {bad[1]} is {data[bad]!r}")
+    n_channels = data.shape[1]
+    names = _check_names(channel_names, n_channels)
+
+    if kind in _AUDIO_KINDS:
+        int_rate = round(rate)
+        if int_rate < 1 or abs(rate - int_rate) > 1e-6 * rate:
+            raise ParameterError(f"{kind} needs a whole number of hertz; {rate!r} Hz is not")
+        if kind == "flac" and n_channels > _FLAC_MAX_CHANNELS:
+            raise ParameterError(f"flac holds at most {_FLAC_MAX_CHANNELS} channels, got {n_channels}")
+        if kind in _CLIPPED_KINDS:
+            outside = int(np.count_nonzero(np.abs(data) > 1.0))
+            if outside:
+                np.clip(data, -1.0, 1.0, out=data)
+                warnings.warn(f"{source}: {outside} samples outside -1..1 were clipped for {kind}",
+                              ClippingWarning, stacklevel=2)
+
+    # Checks on the target before any byte is written.
+    if target.is_dir():
+        raise _err(source, "is a directory")
+    parent = target.parent
+    if not parent.is_dir():
+        raise _err(source, f"directory {str(parent)!r} does not exist")
+    if target.exists() and not force:
+        raise _err(source, "exists; pass --force to overwrite")
+
+    tmp = _make_temp(parent, target.name, source)
+    try:
+        if kind in _AUDIO_KINDS:
+            fmt, subtype = _AUDIO_KINDS[kind]
+            try:
+                sf.write(str(tmp), data, int(round(rate)), subtype=subtype, format=fmt)
+            except (sf.SoundFileError, RuntimeError, ValueError, TypeError) as exc:
+                raise _err(source, f"cannot write {kind} ({_soundfile_reason(exc)})") from None
+        else:
+            _write_csv(tmp, data, rate, names)
+        _commit(tmp, target, force, source)
+    except OSError as exc:
+        raise _err(source, f"cannot write file ({exc.strerror or exc})") from None
+    finally:
+        try:
+            tmp.unlink()
+        except FileNotFoundError:
+            pass
+        except OSError:
+            pass
+    return target
+
+
+def _check_names(channel_names: Sequence[str] | None, n_channels: int) -> tuple[str, ...]:
+    if channel_names is None:
+        return _default_names(n_channels)
+    if isinstance(channel_names, str):
+        raise ParameterError("channel_names must be a sequence of names, not one string")
+    names = tuple(str(n).strip() for n in channel_names)
+    if len(names) != n_channels:
+        raise ParameterError(f"{len(names)} channel names given for {n_channels} channels")
+    for name in names:
+        if not name or any(c in name for c in ',;\t\r\n"') or _is_comment(name) or _numeric([name]):
+            raise ParameterError(f"channel name {name!r} is not usable in a CSV header "
+                                 f"(empty, numeric, or holds a delimiter, quote or comment mark)")
+    return names
+
+
+def _make_temp(parent: Path, name: str, source: str) -> Path:
+    for _ in range(100):
+        tmp = parent / f".{name}.{secrets.token_hex(4)}.tmp"
+        try:
+            fd = os.open(tmp, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o666)
+        except FileExistsError:
+            continue
+        except OSError as exc:
+            raise _err(source, f"cannot create a file in {str(parent)!r} ({exc.strerror or exc})") from None
+        os.close(fd)
+        return tmp
+    raise _err(source, f"cannot create a temporary file in {str(parent)!r}")
+
+
+def _commit(tmp: Path, target: Path, force: bool, source: str) -> None:
+    """Move the finished temporary file into place; never replace a file unless forced."""
+    if force:
+        os.replace(tmp, target)
+        return
+    try:
+        os.link(tmp, target)           # fails if the target appeared meanwhile
+    except FileExistsError:
+        raise _err(source, "exists; pass --force to overwrite") from None
+    except OSError:
+        if target.exists():            # file systems without hard links
+            raise _err(source, "exists; pass --force to overwrite") from None
+        os.replace(tmp, target)
+
+
+def _write_csv(tmp: Path, data: np.ndarray, rate: float, names: tuple[str, ...]) -> None:
+    n, n_channels = data.shape
+    row_format = ",".join(["%.12g"] + ["%.9g"] * n_channels) + "\n"
+    with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+        fh.write(",".join(("time_s",) + names) + "\n")
+        for start in range(0, n, _CSV_CHUNK_ROWS):
+            stop = min(start + _CSV_CHUNK_ROWS, n)
+            block = np.empty((stop - start, n_channels + 1), dtype=np.float64)
+            block[:, 0] = np.arange(start, stop, dtype=np.float64) / rate
+            block[:, 1:] = data[start:stop]
+            fh.write((row_format * (stop - start)) % tuple(block.ravel().tolist()))
