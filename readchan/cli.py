@@ -1,0 +1,211 @@
+"""The command line: parse, call the library, render.  Exit codes are mapped here, once.
+
+Exit codes: 0 every read valid; 1 data found, not all valid; 2 bad input or usage;
+3 no data found; 4 internal error (a bug: please report it).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sys
+from enum import Enum
+from pathlib import Path
+from typing import Optional
+
+import typer
+from rich.console import Console
+
+from readchan.errors import EXIT_BAD_INPUT, ParameterError, ReadchanError
+
+EXIT_INTERNAL = 4
+
+app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
+                  help="Decode, diagnose and synthesize magnetic read-channel captures (F2F magnetic stripe).")
+out = Console(soft_wrap=True)
+err = Console(stderr=True)
+
+
+class Kind(str, Enum):
+    auto = "auto"
+    head = "head"
+    logic = "logic"
+
+
+class WriteKind(str, Enum):
+    wav16 = "wav16"
+    wav24 = "wav24"
+    wav_float = "wav-float"
+    flac = "flac"
+    csv = "csv"
+
+
+class Profile(str, Enum):
+    constant = "constant"
+    ramp = "ramp"
+    swipe = "swipe"
+
+
+class PulseKind(str, Enum):
+    karlqvist = "karlqvist"
+    lorentzian = "lorentzian"
+
+
+class Output(str, Enum):
+    head = "head"
+    flux = "flux"
+
+
+def _settings(fmt: str, kind: Kind, track: Optional[int], notch: str, lowpass_hz: Optional[float],
+              highpass_hz: float):
+    from readchan.condition import ConditionSettings
+    from readchan.decode import DecodeSettings
+    from readchan.formats import parse_format
+
+    if notch not in ("auto", "off"):
+        try:
+            notch_v: str | float = float(notch)
+        except ValueError:
+            raise ParameterError(f"--notch takes auto, off or a frequency in Hz, was {notch!r}") from None
+    else:
+        notch_v = notch
+    cs = ConditionSettings(highpass_hz=highpass_hz or None, lowpass_hz=lowpass_hz)
+    return DecodeSettings(fmt=parse_format(fmt), kind=kind.value, track=track, condition=cs, notch=notch_v)
+
+
+def _channels(channel: Optional[list[int]]):
+    return None if not channel else list(channel)
+
+
+@app.command()
+def decode(
+    captures: list[Path] = typer.Argument(..., help="Capture files: WAV/FLAC/AIFF audio or CSV."),
+    fmt: str = typer.Option("auto", "--format", "-f",
+                            help="Character format: auto, iso-alpha, iso-bcd, track1..3, or custom:bits=..,parity=..,..."),
+    channel: Optional[list[int]] = typer.Option(None, "--channel", "-c", help="Channel(s) to decode, from 0 (default all)."),
+    kind: Kind = typer.Option(Kind.auto, help="Signal kind: head pulses, logic-level edges, or auto-detect."),
+    track: Optional[int] = typer.Option(None, min=1, max=3, help="ISO track the channel holds (for the density)."),
+    rate: Optional[float] = typer.Option(None, "--rate", help="Sample rate in Hz for CSV files with no time column."),
+    notch: str = typer.Option("auto", help="Mains notch: auto, off, or a frequency in Hz."),
+    lowpass_hz: Optional[float] = typer.Option(None, "--lowpass-hz", help="Optional low-pass corner in Hz."),
+    highpass_hz: float = typer.Option(20.0, "--highpass-hz", help="Baseline-removal high-pass corner in Hz (0: off)."),
+    as_json: bool = typer.Option(False, "--json", help="Print one JSON object on stdout."),
+    unmask: bool = typer.Option(False, "--unmask", help="Show account numbers whole (only for cards you may read)."),
+) -> None:
+    """Decode the tracks held in CAPTURE files: characters, parity, LRC and fields."""
+    from readchan.capture import load_capture
+    from readchan.decode import decode_capture
+    from readchan.render import exit_code, print_decode, read_dict, reads_of
+
+    settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz)
+    all_reads = []
+    for path in captures:
+        cap = load_capture(path, rate_hz=rate)
+        results = decode_capture(cap, settings, _channels(channel))
+        all_reads.extend(reads_of(results))
+        if not as_json:
+            print_decode(out, str(path), results, unmask=unmask)
+    if as_json:
+        print(json.dumps({"reads": [read_dict(r, unmask=unmask) for r in all_reads]}, indent=2))
+    raise typer.Exit(exit_code(all_reads))
+
+
+@app.command()
+def synth(
+    output: Path = typer.Argument(..., help="File to write (.wav, .flac or .csv)."),
+    track1: Optional[str] = typer.Option(None, "--track1", help="Track 1 text (alphanumeric, 210 bpi)."),
+    track2: Optional[str] = typer.Option(None, "--track2", help="Track 2 text (numeric, 75 bpi)."),
+    track3: Optional[str] = typer.Option(None, "--track3", help="Track 3 text (numeric, 210 bpi)."),
+    bits: Optional[str] = typer.Option(None, "--bits", help="Raw bits (0/1) for one channel instead of text."),
+    fmt: Optional[str] = typer.Option(None, "--format", "-f", help="Character format for --track1 text (custom formats)."),
+    density_bpi: Optional[float] = typer.Option(None, "--density-bpi", help="Recording density in bpi (all tracks)."),
+    speed_cm_s: float = typer.Option(30.0, "--speed-cm-s", help="Mean swipe speed in cm/s."),
+    profile: Profile = typer.Option(Profile.constant, help="Speed profile along the card."),
+    variation: float = typer.Option(0.0, help="Speed variation along the card, fraction of the mean (ramp: ±; swipe: ±)."),
+    pulse: PulseKind = typer.Option(PulseKind.karlqvist, help="Isolated-pulse model."),
+    gap_um: float = typer.Option(12.0, "--gap-um", help="Karlqvist head gap g in µm."),
+    spacing_um: float = typer.Option(5.0, "--spacing-um", help="Head-to-medium spacing d in µm."),
+    transition_um: float = typer.Option(15.0, "--transition-um", help="Arctan transition parameter a in µm."),
+    pw50_um: Optional[float] = typer.Option(None, "--pw50-um", help="Lorentzian PW50 in µm (with --pulse lorentzian)."),
+    rate_hz: float = typer.Option(48000.0, "--rate-hz", help="Sample rate in Hz."),
+    amplitude: float = typer.Option(0.5, help="Isolated-pulse peak at the mean speed (full scale)."),
+    snr_db: Optional[float] = typer.Option(None, "--snr-db", help="White-noise SNR in dB (median |peak| / noise RMS)."),
+    jitter: float = typer.Option(0.0, help="Per-transition jitter, uniform ± fraction of a bit cell."),
+    density_error: float = typer.Option(0.0, "--density-error", help="Fractional density error (+0.05 = 5 % dense)."),
+    hum_hz: float = typer.Option(50.0, "--hum-hz", help="Mains hum frequency in Hz."),
+    hum_level: float = typer.Option(0.0, "--hum-level", help="Hum amplitude, fraction of the median peak."),
+    wander_level: float = typer.Option(0.0, "--wander-level", help="2 Hz baseline wander, fraction of the median peak."),
+    dc_offset: float = typer.Option(0.0, "--dc-offset", help="DC offset in full-scale units."),
+    highpass_hz: Optional[float] = typer.Option(None, "--ac-coupling-hz", help="First-order AC-coupling corner in Hz."),
+    clip: Optional[float] = typer.Option(None, help="Clip at this fraction of the median peak."),
+    invert: bool = typer.Option(False, help="Invert the polarity."),
+    reverse: bool = typer.Option(False, help="Swipe the card backwards."),
+    swipes: int = typer.Option(1, help="Number of swipes in the capture."),
+    gap_s: float = typer.Option(0.25, "--gap-s", help="Quiet time between swipes in seconds."),
+    signal: Output = typer.Option(Output.head, help="head: pickup voltage; flux: magnetisation square wave (coil drive)."),
+    kind: WriteKind = typer.Option(WriteKind.wav16, "--kind", help="Output file kind."),
+    seed: int = typer.Option(0, help="Random seed."),
+    force: bool = typer.Option(False, help="Overwrite OUTPUT if it exists."),
+) -> None:
+    """Synthesize a capture of known content and known impairments (one channel per track)."""
+    from readchan.capture import write_capture
+    from readchan.formats import parse_format
+    from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
+    from readchan.synth.card import parse_bits, track_content
+    from readchan.synth.head import KarlqvistPulse, LorentzianPulse
+
+    if output.exists() and not force:
+        raise ParameterError(f"{output} exists; pass --force to overwrite")
+    custom = parse_format(fmt) if fmt else None
+    tracks = []
+    for n, text in ((1, track1), (2, track2), (3, track3)):
+        if text is not None:
+            tracks.append(track_content(text, track=n, fmt=custom if n == 1 else None, density_bpi=density_bpi))
+    if bits is not None:
+        tracks.append(track_content(bits=parse_bits(bits), density_bpi=density_bpi))
+    if not tracks:
+        raise ParameterError("give the content: --track1, --track2, --track3 and/or --bits")
+    if pulse is PulseKind.lorentzian:
+        head = LorentzianPulse(pw50_m=(pw50_um if pw50_um is not None else 42.0) * 1e-6)
+    else:
+        if pw50_um is not None:
+            raise ParameterError("--pw50-um goes with --pulse lorentzian; the Karlqvist pulse takes --gap-um, --spacing-um, --transition-um")
+        head = KarlqvistPulse(gap_um * 1e-6, spacing_um * 1e-6, transition_um * 1e-6)
+    imp = Impairments(density_error=density_error, jitter=jitter, snr_db=snr_db, hum_hz=hum_hz, hum_level=hum_level,
+                      wander_level=wander_level, dc_offset=dc_offset, highpass_hz=highpass_hz, clip=clip,
+                      invert=invert, reverse=reverse)
+    spec = SynthSpec(tracks=tuple(tracks), speed=SpeedProfile(speed_cm_s, profile.value, variation), pulse=head,
+                     rate_hz=rate_hz, amplitude=amplitude, impairments=imp, swipes=swipes, gap_s=gap_s,
+                     output=signal.value, seed=seed)
+    res = synthesize(spec)
+    names = [t.label.replace(" ", "") or f"ch{i}" for i, t in enumerate(tracks)]
+    path = write_capture(output, res.samples, res.rate_hz, kind=kind.value, force=force, channel_names=names)
+    err.print(f"wrote {path}: {len(tracks)} channel(s), {res.duration_s:.3f} s at {res.rate_hz:g} Hz, "
+              f"PW50 {res.pw50_m * 1e6:.1f} µm, {swipes} swipe(s)")
+
+
+def main() -> None:
+    """Console entry point: run the app and map errors to one-line messages and exit codes."""
+    try:
+        rv = app(standalone_mode=False)
+        sys.exit(rv if isinstance(rv, int) else 0)
+    except typer.Exit as e:
+        sys.exit(e.exit_code)
+    except ReadchanError as e:
+        err.print(f"readchan: error: {e}", highlight=False, markup=False)
+        sys.exit(e.exit_code)
+    except KeyboardInterrupt:
+        sys.exit(130)
+    except Exception as e:  # click usage errors and anything unforeseen
+        import click
+
+        if isinstance(e, click.exceptions.ClickException):
+            err.print(f"readchan: error: {e.format_message()}", highlight=False, markup=False)
+            sys.exit(EXIT_BAD_INPUT)
+        if isinstance(e, click.exceptions.Abort):
+            sys.exit(130)
+        if os.environ.get("READCHAN_DEBUG"):
+            raise
+        err.print(f"readchan: internal error: {type(e).__name__}: {e} (set READCHAN_DEBUG=1 for details)",
+                  highlight=False, markup=False)
+        sys.exit(EXIT_INTERNAL)

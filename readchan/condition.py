@@ -1,0 +1,102 @@
+"""Stage 1, conditioning: remove DC offset and slow baseline, optional low-pass and mains notch.
+
+All filters are zero-phase (``scipy.signal.sosfiltfilt`` / ``filtfilt``), so they move no
+pulse peak in time: timing recovery sees the pulses where the head produced them.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import signal as sps
+
+from readchan.errors import ParameterError
+
+
+@dataclass(frozen=True)
+class ConditionSettings:
+    """Conditioning settings.
+
+    Parameters
+    ----------
+    highpass_hz : corner of the baseline-removing high-pass (2nd-order Butterworth,
+        zero-phase), in Hz; None or 0 for DC removal only.
+    lowpass_hz : corner of an optional 4th-order Butterworth low-pass, in Hz.
+    notch_hz : mains frequencies to notch (e.g. (50.0,)), each with its first harmonics.
+    notch_q : quality factor of each notch.
+    """
+
+    highpass_hz: float | None = 20.0
+    lowpass_hz: float | None = None
+    notch_hz: tuple[float, ...] = ()
+    notch_q: float = 8.0
+
+
+@dataclass(frozen=True)
+class Conditioned:
+    """A conditioned single-channel signal.
+
+    Attributes
+    ----------
+    signal : float64 samples after conditioning (capture units).
+    rate_hz : sample rate in Hz.
+    dc_offset : the median removed, in capture units.
+    channel : channel index in the capture.
+    """
+
+    signal: np.ndarray
+    rate_hz: float
+    dc_offset: float
+    channel: int
+
+
+def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings = ConditionSettings(),
+              *, channel: int = 0) -> Conditioned:
+    """Condition one channel of a head signal; see :class:`ConditionSettings`."""
+    x = np.asarray(samples, dtype=float)
+    nyq = rate_hz / 2
+    dc = float(np.median(x))
+    y = x - dc
+    pad = min(y.size - 1, int(3 * rate_hz / max(settings.highpass_hz or 1.0, 1.0)))
+    if settings.highpass_hz:
+        _check_corner("highpass", settings.highpass_hz, nyq)
+        sos = sps.butter(2, settings.highpass_hz, btype="highpass", fs=rate_hz, output="sos")
+        y = sps.sosfiltfilt(sos, y, padlen=max(pad, 0))
+    for f in settings.notch_hz:
+        for h in (1, 2, 3):
+            fh = f * h
+            if fh < 0.9 * nyq:
+                b, a = sps.iirnotch(fh, settings.notch_q * h, fs=rate_hz)
+                y = sps.filtfilt(b, a, y, padlen=min(y.size - 1, 3 * max(len(a), len(b))))
+    if settings.lowpass_hz:
+        _check_corner("lowpass", settings.lowpass_hz, nyq)
+        sos = sps.butter(4, settings.lowpass_hz, btype="lowpass", fs=rate_hz, output="sos")
+        y = sps.sosfiltfilt(sos, y)
+    return Conditioned(signal=np.ascontiguousarray(y), rate_hz=float(rate_hz), dc_offset=dc, channel=channel)
+
+
+def _check_corner(name: str, f_hz: float, nyq: float) -> None:
+    if not math.isfinite(f_hz) or not 0 < f_hz < nyq:
+        raise ParameterError(f"{name} corner must be between 0 and {nyq:g} Hz (Nyquist), was {f_hz!r}")
+
+
+def estimate_hum_hz(x: np.ndarray, rate_hz: float, *, ratio_db: float = 12.0) -> float | None:
+    """Return 50.0 or 60.0 if the spectrum holds a mains line ``ratio_db`` above its
+    neighbourhood (Welch periodogram, 0.5 Hz resolution or finer), else None."""
+    n = x.size
+    if n < rate_hz * 0.2:
+        return None
+    nper = int(min(n, 2 ** math.ceil(math.log2(rate_hz * 2))))
+    f, p = sps.welch(x, fs=rate_hz, nperseg=nper)
+    best, best_ratio = None, ratio_db
+    for mains in (50.0, 60.0):
+        line = (f > mains - 1.5) & (f < mains + 1.5)
+        near = ((f > mains - 12) & (f < mains - 4)) | ((f > mains + 4) & (f < mains + 12))
+        if not line.any() or not near.any():
+            continue
+        ratio = 10 * math.log10(p[line].max() / max(np.median(p[near]), 1e-300))
+        if ratio > best_ratio:
+            best, best_ratio = mains, ratio
+    return best

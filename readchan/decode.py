@@ -1,0 +1,171 @@
+"""The read channel end to end: capture → condition → transitions → reads → bits → frames → fields.
+
+Each stage is its own module; this one only wires them together and keeps what every stage
+produced, so that reports and diagnostics can point back into the capture.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from readchan.capture import Capture
+from readchan.condition import ConditionSettings, Conditioned, condition, estimate_hum_hz
+from readchan.detect import Transitions, classify_kind, detect_head, detect_logic
+from readchan.errors import ParameterError
+from readchan.fields import CardFields, parse_fields
+from readchan.formats import TRACKS, CharFormat, TrackSpec
+from readchan.framing import Frame, frame, frame_auto
+from readchan.segment import Segment, segment
+from readchan.timing import BitStream, recover_bits
+
+KINDS = ("auto", "head", "logic")
+
+
+@dataclass(frozen=True)
+class DecodeSettings:
+    """How to decode.
+
+    Parameters
+    ----------
+    fmt : character format, or None to try the known formats (``--format auto``).
+    kind : ``"auto"``, ``"head"`` (pulse peaks) or ``"logic"`` (two-level edges).
+    track : ISO track number (1–3) the channel holds, or None to guess from the format.
+    condition : conditioning settings (head signals only).
+    notch : ``"auto"`` (notch mains hum when the spectrum shows it), ``"off"``, or a frequency.
+    threshold : detection threshold as a fraction of the local pulse envelope.
+    loop_gain : gain α of the bit-period tracking loop.
+    """
+
+    fmt: CharFormat | None = None
+    kind: str = "auto"
+    track: int | None = None
+    condition: ConditionSettings = field(default_factory=ConditionSettings)
+    notch: str | float = "auto"
+    threshold: float = 0.35
+    loop_gain: float = 0.25
+
+    def __post_init__(self) -> None:
+        if self.kind not in KINDS:
+            raise ParameterError(f"kind must be one of {', '.join(KINDS)}, was {self.kind!r}")
+        if self.track is not None and self.track not in TRACKS:
+            raise ParameterError(f"track must be 1, 2 or 3, was {self.track!r}")
+        if not 0.05 <= self.threshold <= 0.95:
+            raise ParameterError(f"threshold must be between 0.05 and 0.95, was {self.threshold!r}")
+        if not 0.0 < self.loop_gain <= 1.0:
+            raise ParameterError(f"loop gain must be in (0, 1], was {self.loop_gain!r}")
+
+
+@dataclass(frozen=True)
+class ChannelResult:
+    """Everything decoded from one channel: its stages' outputs and its reads."""
+
+    channel: int
+    kind: str
+    conditioned: Conditioned | None
+    transitions: Transitions
+    segments: tuple[Segment, ...]
+    reads: tuple["Read", ...]
+    hum_hz: float | None
+
+
+@dataclass(frozen=True)
+class Read:
+    """One framed read (a swipe of one track).
+
+    Attributes
+    ----------
+    source : the capture's path.
+    channel : channel index, from 0.
+    segment : the read's span in the channel's transitions.
+    transitions : the read's transitions.
+    bits : the recovered bit stream.
+    frame : the framed characters and their checks.
+    fields : parsed ISO/IEC 7813 fields, or None.
+    track : the assumed track (density) used for speeds.
+    mean_speed_cm_s : mean swipe speed from the bit period and the track density.
+    """
+
+    source: str
+    channel: int
+    segment: Segment
+    transitions: Transitions
+    bits: BitStream
+    frame: Frame
+    fields: CardFields | None
+    track: TrackSpec | None
+    mean_speed_cm_s: float | None
+
+    @property
+    def valid(self) -> bool:
+        return bool(self.frame.valid)
+
+    @property
+    def start_s(self) -> float:
+        return self.segment.start_s
+
+    @property
+    def end_s(self) -> float:
+        return self.segment.end_s
+
+
+def guess_track(fmt_name: str, n_chars: int, channel: int, n_channels: int,
+                explicit: int | None = None) -> TrackSpec | None:
+    """The ISO track a read most likely came from, for its density (common practice):
+    the explicit choice; else channel i of a three-channel capture is track i + 1; else
+    alphanumeric → track 1, BCD → track 2 unless longer than track 2 allows (then track 3)."""
+    if explicit is not None:
+        return TRACKS[explicit]
+    if n_channels == 3 and TRACKS[channel + 1].fmt.name == fmt_name:
+        return TRACKS[channel + 1]
+    if fmt_name == TRACKS[1].fmt.name:
+        return TRACKS[1]
+    if fmt_name == TRACKS[2].fmt.name:
+        return TRACKS[2] if n_chars + 1 <= TRACKS[2].max_chars else TRACKS[3]
+    return None
+
+
+def mean_speed_cm_s(bits: BitStream, density_bpi: float) -> float:
+    """Mean speed in cm/s: density ρ (bit/inch) and bit period T give v = 2.54/(ρ·T) cm/s."""
+    return float(np.mean(2.54 / (density_bpi * bits.period_s)))
+
+
+def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = DecodeSettings(), *,
+                   channel: int = 0, n_channels: int = 1, source: str = "") -> ChannelResult:
+    """Decode one channel's samples ``x`` at ``rate_hz``."""
+    kind = classify_kind(x) if settings.kind == "auto" else settings.kind
+    cond = None
+    hum = None
+    if kind == "logic":
+        tr = detect_logic(x, rate_hz)
+    else:
+        cs = settings.condition
+        if settings.notch == "auto":
+            hum = estimate_hum_hz(x - np.median(x), rate_hz)
+        elif settings.notch != "off":
+            hum = float(settings.notch)
+        if hum:
+            cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
+        cond = condition(x, rate_hz, cs, channel=channel)
+        tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
+    segs = segment(tr)
+    reads = []
+    for seg in segs:
+        sub = tr.subset(seg.start, seg.stop)
+        bs = recover_bits(sub.times_s, loop_gain=settings.loop_gain)
+        fr = frame(bs.bits, settings.fmt) if settings.fmt is not None else frame_auto(bs.bits)
+        if fr is None:
+            continue
+        track = guess_track(fr.format, len(fr.text), channel, n_channels, settings.track)
+        speed = mean_speed_cm_s(bs, track.density_bpi) if track else None
+        reads.append(Read(source, channel, seg, sub, bs, fr, parse_fields(fr.text, fr.format), track, speed))
+    return ChannelResult(channel, kind, cond, tr, tuple(segs), tuple(reads), hum)
+
+
+def decode_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),
+                   channels: list[int] | None = None) -> list[ChannelResult]:
+    """Decode the chosen ``channels`` (default: all) of a capture."""
+    chans = range(cap.n_channels) if channels is None else channels
+    return [decode_channel(cap.channel(c), cap.rate_hz, settings, channel=c,
+                           n_channels=cap.n_channels, source=cap.source) for c in chans]
