@@ -91,8 +91,7 @@ _TIME_NAMES = {"t", "s", "sec", "secs", "second", "seconds", "time", "times"}
 _TIME_SCALE = {"s": 1.0, "sec": 1.0, "secs": 1.0, "ms": 1e-3, "us": 1e-6,
                "µs": 1e-6, "μs": 1e-6, "ns": 1e-9}
 # Column names that are themselves a unit: canonical spelling.
-_UNIT_NAMES = {"v": "V", "volt": "V", "volts": "V", "mv": "mV", "uv": "uV", "µv": "µV",
-               "a": "A", "ma": "mA", "fs": "FS"}
+_UNIT_NAMES = {"v": "V", "volt": "V", "volts": "V", "mv": "mV", "uv": "uV", "µv": "µV", "fs": "FS"}
 
 
 class TruncatedCaptureWarning(UserWarning):
@@ -313,7 +312,10 @@ def load_capture(path: str | Path, *, rate_hz: float | None = None,
         rate_hz = _check_rate(rate_hz)
     if time_column not in (None, True, False):
         raise ParameterError(f"time_column must be True, False or None, not {time_column!r}")
-    p = Path(path)
+    try:
+        p = Path(path)
+    except TypeError:
+        raise ParameterError(f"a capture path must be a string or a Path, not {type(path).__name__}") from None
     try:
         if not p.exists():
             raise _err(source, "no such file")
@@ -389,9 +391,9 @@ def _load_audio(p: Path, source: str, rate_hz: float | None) -> Capture:
 
 def _riff_cut_short(head: bytes, size: int) -> bool:
     """True if a RIFF file is shorter than its own header says."""
-    if not head.startswith(b"RIFF") or size < 8:
-        return size < 12
-    return size < int.from_bytes(head[4:8], "little") + 8
+    if size < 12:
+        return True
+    return head.startswith(b"RIFF") and size < int.from_bytes(head[4:8], "little") + 8
 
 
 def _wav_truncation(p: Path) -> tuple[int, int] | None:
@@ -733,6 +735,14 @@ def _fit_rate(p: Path, source: str, layout: _Layout, times: np.ndarray) -> float
         line = _line_of_row(p, layout, worst)
         raise _err(source, f"time column is not uniformly sampled (largest deviation "
                            f"{abs(residual[worst]):.3g} s at row {worst + 1}, line {line})")
+    # A single dropped or doubled row can hide inside the residual bound; steps catch it.
+    steps = np.diff(times)
+    step_error = np.abs(steps - dt)
+    worst = int(np.argmax(step_error))
+    if step_error[worst] > _UNIFORM_TOLERANCE * dt:
+        line = _line_of_row(p, layout, worst + 1)
+        raise _err(source, f"time column is not uniformly sampled (step of {steps[worst]:.3g} s at row "
+                           f"{worst + 2}, line {line}, where the sample period is {dt:.3g} s)")
     return 1.0 / dt
 
 
@@ -784,7 +794,10 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
     ClippingWarning
         If integer-PCM kinds had to clip values outside -1..1.
     """
-    target = Path(path)
+    try:
+        target = Path(path)
+    except TypeError:
+        raise ParameterError(f"a capture path must be a string or a Path, not {type(path).__name__}") from None
     source = str(path)
     if kind not in WRITE_KINDS:
         raise ParameterError(f"unknown capture kind {kind!r}; choose one of {', '.join(WRITE_KINDS)}")
