@@ -774,7 +774,8 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
     force : bool
         Replace an existing file.
     channel_names : sequence of str, optional
-        Column names for ``csv`` (default ``ch0``, ``ch1``, ...).
+        Column names for ``csv`` (default ``ch0``, ``ch1``, ...); ignored by
+        the audio kinds, which have no place for them.
 
     Returns
     -------
@@ -818,7 +819,8 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
     if bad is not None:
         raise ParameterError(f"samples must be finite; sample {bad[0]} of channel {bad[1]} is {data[bad]!r}")
     n_channels = data.shape[1]
-    names = _check_names(channel_names, n_channels)
+    # Audio files carry no channel names; only a CSV header needs them to be usable.
+    names = _check_names(channel_names, n_channels) if kind == "csv" else _default_names(n_channels)
 
     if kind in _AUDIO_KINDS:
         int_rate = round(rate)

@@ -673,6 +673,11 @@ def test_write_with_kind_contradicting_extension_is_refused(tmp_path):
         write_capture(tmp_path / "x.wav", tone(), RATE, kind="csv")
 
 
+def test_audio_kinds_ignore_channel_names(tmp_path):
+    path = write_capture(tmp_path / "named.wav", tone(channels=2), RATE, channel_names=("a,b", "#c"))
+    assert load_capture(path).n_channels == 2
+
+
 @pytest.mark.parametrize("names", [("a",), ("a", "b,c"), ("1", "2"), ("a", "")])
 def test_write_with_unusable_channel_names_is_a_parameter_error(tmp_path, names):
     with pytest.raises(ParameterError):
