@@ -69,10 +69,6 @@ _CLIPPED_KINDS = ("wav16", "wav24", "flac")
 _FLAC_MAX_CHANNELS = 8
 
 _TEXT_SUFFIXES = {".csv", ".txt", ".tsv", ".dat", ".asc"}
-_AUDIO_SUFFIXES = {
-    ".wav", ".wave", ".flac", ".aif", ".aiff", ".aifc", ".ogg", ".oga",
-    ".w64", ".rf64", ".caf", ".au", ".snd",
-}
 _SUFFIX_KIND = {".wav": ("wav16", "wav24", "wav-float"), ".wave": ("wav16", "wav24", "wav-float"),
                 ".flac": ("flac",), ".csv": ("csv",), ".txt": ("csv",), ".tsv": ("csv",)}
 # Leading bytes of container formats: a file starting so is audio, never text.
