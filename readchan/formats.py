@@ -68,6 +68,11 @@ def _check_format_fields(fmt: CharFormat) -> None:
             )
     if fmt.start_code == fmt.end_code:
         raise FormatError(f"{where}: start and end codes must differ, both were {fmt.start_code:#x}")
+    if fmt.start_code == 0 and fmt.parity != "odd":
+        raise FormatError(
+            f"{where}: start code 0 with {fmt.parity} parity is all zeros, "
+            "indistinguishable from clocking zeros"
+        )
     if fmt.separator_code in (fmt.start_code, fmt.end_code):
         raise FormatError(f"{where}: separator code {fmt.separator_code:#x} equals a sentinel")
     if not isinstance(fmt.lrc, bool):
