@@ -100,8 +100,8 @@ def mask_pan(pan: str) -> str:
 
     Examples
     --------
-    >>> mask_pan('4000001234567899')
-    '400000******7899'
+    >>> mask_pan('9900123456789017')
+    '990012******9017'
     >>> mask_pan('12345678')
     '****5678'
     """
@@ -204,7 +204,7 @@ def parse_fields(text: str, format_name: str) -> CardFields | None:
 
     Examples
     --------
-    >>> f = parse_fields(';4000001234567899=29121010000?', 'iso-bcd')
+    >>> f = parse_fields(';9900123456789017=29121010000?', 'iso-bcd')
     >>> f.expiry_yymm, f.service_code, f.luhn_ok
     ('2912', '101', True)
     """
@@ -279,8 +279,8 @@ def mask_text(text: str, format_name: str, unmask: bool = False) -> str:
 
     Examples
     --------
-    >>> mask_text(';4000001234567899=29121010000?', 'iso-bcd')
-    ';400000******7899=29121010000?'
+    >>> mask_text(';9900123456789017=29121010000?', 'iso-bcd')
+    ';990012******9017=29121010000?'
     """
     if unmask:
         return text
