@@ -67,7 +67,9 @@ def _check_format_fields(fmt: CharFormat) -> None:
                 f"(0..{n_codes - 1:#x})"
             )
     if fmt.start_code == fmt.end_code:
-        raise FormatError(f"{where}: start and end codes must differ, both were {fmt.start_code:#x}")
+        raise FormatError(
+            f"{where}: start and end codes must differ, both were {fmt.start_code:#x}"
+        )
     if fmt.start_code == 0 and fmt.parity != "odd":
         raise FormatError(
             f"{where}: start code 0 with {fmt.parity} parity is all zeros, "
@@ -305,7 +307,10 @@ _NAMED = {
 }
 _RESERVED_NAMES = ("auto", *_NAMED, "custom")
 _CUSTOM_KEYS = ("bits", "parity", "offset", "start", "end", "sep", "lrc", "max", "name")
-_CUSTOM_SYNTAX = "custom:bits=N,start=CODE,end=CODE[,parity=odd|even|none,offset=N,sep=CODE,lrc=on|off,max=N,name=NAME]"
+_CUSTOM_SYNTAX = (
+    "custom:bits=N,start=CODE,end=CODE"
+    "[,parity=odd|even|none,offset=N,sep=CODE,lrc=on|off,max=N,name=NAME]"
+)
 _VALID_NAMES = "auto, iso-alpha, iso-bcd, track1, track2, track3, " + _CUSTOM_SYNTAX
 _TRUE = ("on", "yes", "true", "1")
 _FALSE = ("off", "no", "false", "0")
@@ -319,7 +324,8 @@ def parse_format(spec: str) -> CharFormat | None:
     spec : str
         ``'auto'``; ``'iso-alpha'`` or ``'iso-bcd'``; ``'track1'``, ``'track2'`` or ``'track3'``
         (the ISO format of that track); or a user's format
-        ``'custom:bits=5,parity=even,offset=0x30,start=0x0B,end=0x0F,sep=0x0D,lrc=off,max=64,name=myfmt'``.
+        ``'custom:bits=5,parity=even,offset=0x30,start=0x0B,end=0x0F,sep=0x0D,lrc=off,``
+        ``max=64,name=myfmt'``.
         In a custom format only ``bits``, ``start`` and ``end`` are required; ``parity``
         defaults to odd, ``offset`` to 0x30 for up to 5 bits and 0x20 above, ``sep`` to none,
         ``lrc`` to on, ``max`` to no limit and ``name`` to ``'custom'``. Integers are decimal or

@@ -33,7 +33,7 @@ import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
 from readchan.errors import FormatError, ParameterError
-from readchan.formats import KNOWN_FORMATS, CharFormat, parity_bit
+from readchan.formats import KNOWN_FORMATS, CharFormat
 
 __all__ = ["Frame", "encode_text", "frame", "frame_auto", "lrc_code"]
 
@@ -224,16 +224,32 @@ def frame(bits: np.ndarray, fmt: CharFormat, *, max_chars: int | None = None) ->
 
     Notes
     -----
-    In each direction the first :data:`MAX_STARTS` occurrences of the start sentinel's bit
-    pattern (data and parity) are tried, and, for formats that can correct, windows one bit
-    away from it just after a run of zeros (where a damaged start sentinel sits). From each
-    start, characters are read up to the first end sentinel with good parity; characters with
-    a parity failure that are one bit or less from the end sentinel are tried as the end too.
-    Reading stops at `max_chars` or when the bits run out (``complete=False``; trailing
-    all-zero characters are then dropped as clocking zeros).
+    Starts tried, in each direction: the first occurrence of the start sentinel's bit pattern
+    (data and parity), and the windows holding the first one-bit after each of the first
+    :data:`MAX_STARTS` runs of clocking zeros that match the pattern exactly or, for a format
+    that can correct, but for one bit (a damaged start sentinel). From each start, characters
+    are read up to the first end sentinel with good parity; up to :data:`MAX_SOFT_ENDS`
+    characters before it that fail parity and are at most one bit from the end sentinel are
+    tried as the end too (a damaged end sentinel). Reading stops at `max_chars` or when the
+    bits run out (``complete=False``; all-zero characters at the end are then dropped as
+    clocking zeros).
 
-    Candidates are ranked: valid first, then complete, then fewer parity failures per
-    character, then more characters; the first best (forward before reverse) is returned.
+    A single error is corrected (module docstring) only when at least
+    ``BORDER_CHARS * bits_per_char`` zero bits (or the ends of the stream) border the frame on
+    both sides: elsewhere a damaged data character with the track going on explains the
+    bits as well.
+
+    Candidates are ranked by, in order:
+
+    1. valid and bordered by clocking zeros on both sides;
+    2. at most :data:`STRAY_ONES` one-bits next to the frame, not separated from it by
+       clocking zeros (the frame explains its burst of bits);
+    3. sides (0 to 2) bordered by clocking zeros beside a sentinel that is present;
+    4. valid; 5. complete; 6. fewer parity failures per character; 7. more characters.
+
+    The first best (forward before reverse) is returned. Ranking on the surrounding zeros
+    before validity matters: an ISO BCD track read backwards can hold a short valid frame
+    (an LRC of ':' reads backwards as ';', '?' is 11111 both ways).
     """
     seq = _as_bits(bits)
     limit = fmt.max_chars if max_chars is None else _checked_limit(max_chars, fmt)
@@ -254,8 +270,8 @@ def frame_auto(bits: np.ndarray, formats: Iterable[CharFormat] = KNOWN_FORMATS) 
     Returns
     -------
     Frame or None
-        The best read by the ranking of :func:`frame` (valid, complete, fewer parity failures
-        per character, more characters), or None if no format's start sentinel occurs.
+        The best read by the ranking of :func:`frame` (Notes), or None if no format's start
+        sentinel occurs.
     """
     seq = _as_bits(bits)
     best: tuple[tuple, Frame] | None = None
@@ -394,9 +410,9 @@ def _build(seq: np.ndarray, start: int, codes: np.ndarray, par_ok: np.ndarray,
     k = codes.size
     if end is None:
         n_data = k
-        while n_data > 1 and codes[n_data - 1] == 0 and _all_zero_char(index, n_data - 1, fmt,
-                                                                        par_ok):
-            n_data -= 1
+        width = fmt.bits_per_char
+        while n_data > 1 and not seq[start + (n_data - 1) * width:start + n_data * width].any():
+            n_data -= 1  # clocking zeros after a read that never found its end
         n_rows, framed, lrc_read = n_data, False, None
     elif fmt.lrc and end + 1 >= k:
         n_data = n_rows = end + 1
@@ -510,15 +526,6 @@ def _stray_ones(seq: np.ndarray, lo: int, hi: int, gap: int, cap: int) -> int:
             edge = pos
         pos += 1
     return count
-
-
-def _all_zero_char(index: np.ndarray, row: int, fmt: CharFormat, par_ok: np.ndarray) -> bool:
-    """True if character `row` was all zero bits (code 0 and a zero or no parity bit)."""
-    if fmt.parity == "none":
-        return True
-    # code 0 has parity bit 1 with odd parity: an all-zero character fails odd parity
-    zero_parity_ok = parity_bit(0, fmt) == 0
-    return bool(par_ok[row]) == zero_parity_ok
 
 
 def _frozen(arr: np.ndarray) -> np.ndarray:
