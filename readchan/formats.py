@@ -270,7 +270,7 @@ class TrackSpec:
     fmt : CharFormat
         Character format of the track.
     density_bpi : float
-        Recording density in bits per inch.
+        Bit density along the track, in bits per inch.
     max_chars : int
         Most characters on the track, incl. sentinels and LRC.
     leading_zeros, trailing_zeros : int

@@ -160,7 +160,7 @@ def test_format_limits_are_those_of_the_longest_track():
     assert ISO_BCD.max_chars == 107
 
 
-def test_track_recording_densities():
+def test_track_bit_densities():
     # ISO/IEC 7811-2: tracks 1 and 3 at 210 bpi, track 2 at 75 bpi
     assert [TRACKS[n].density_bpi for n in (1, 2, 3)] == [210.0, 75.0, 210.0]
 
