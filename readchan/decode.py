@@ -12,7 +12,7 @@ import numpy as np
 
 from readchan.capture import Capture
 from readchan.condition import ConditionSettings, Conditioned, condition, estimate_hum_hz
-from readchan.detect import Transitions, classify_kind, detect_head, detect_logic
+from readchan.detect import Transitions, auto_lowpass_hz, classify_kind, detect_head, detect_logic
 from readchan.errors import ParameterError
 from readchan.fields import CardFields, parse_fields
 from readchan.formats import TRACKS, CharFormat, TrackSpec
@@ -36,6 +36,8 @@ class DecodeSettings:
     notch : ``"auto"`` (notch mains hum when the spectrum shows it), ``"off"``, or a frequency.
     threshold : detection threshold as a fraction of the local pulse envelope.
     loop_gain : gain α of the bit-period tracking loop.
+    auto_lowpass : when no low-pass is set, add one matched to the pulse rate found by a
+        first detection pass (see :func:`readchan.detect.auto_lowpass_hz`).
     """
 
     fmt: CharFormat | None = None
@@ -43,8 +45,9 @@ class DecodeSettings:
     track: int | None = None
     condition: ConditionSettings = field(default_factory=ConditionSettings)
     notch: str | float = "auto"
-    threshold: float = 0.35
+    threshold: float = 0.4
     loop_gain: float = 0.25
+    auto_lowpass: bool = True
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -110,6 +113,18 @@ class Read:
         return self.segment.end_s
 
 
+MIN_CLOCKING_ZEROS = 6
+"""Zeros a read needs just before its start sentinel: every ISO track leads with clocking
+zeros (ISO/IEC 7811-2), while a sentinel pattern found in noise almost never follows six."""
+
+
+def _clocked(bits: np.ndarray, fr: Frame, n: int) -> bool:
+    """True when the ``n`` bits before the start sentinel, in reading order, are all zero."""
+    i0 = int(fr.bit_index[0, 0])
+    before = bits[max(i0 - n, 0):i0] if fr.direction == "forward" else bits[i0 + 1:i0 + 1 + n]
+    return before.size == n and not before.any()
+
+
 def guess_track(fmt_name: str, n_chars: int, channel: int, n_channels: int,
                 explicit: int | None = None) -> TrackSpec | None:
     """The ISO track a read most likely came from, for its density (common practice):
@@ -149,13 +164,19 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
             cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
         cond = condition(x, rate_hz, cs, channel=channel)
         tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
+        if settings.auto_lowpass and cs.lowpass_hz is None:
+            f_lp = auto_lowpass_hz(tr, rate_hz)
+            if f_lp is not None:
+                cs = ConditionSettings(cs.highpass_hz, f_lp, cs.notch_hz, cs.notch_q)
+                cond = condition(x, rate_hz, cs, channel=channel)
+                tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
     segs = segment(tr)
     reads = []
     for seg in segs:
         sub = tr.subset(seg.start, seg.stop)
         bs = recover_bits(sub.times_s, loop_gain=settings.loop_gain)
         fr = frame(bs.bits, settings.fmt) if settings.fmt is not None else frame_auto(bs.bits)
-        if fr is None:
+        if fr is None or not _clocked(bs.bits, fr, MIN_CLOCKING_ZEROS):
             continue
         track = guess_track(fr.format, len(fr.text), channel, n_channels, settings.track)
         speed = mean_speed_cm_s(bs, track.density_bpi) if track else None

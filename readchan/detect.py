@@ -98,8 +98,8 @@ def noise_rms(x: np.ndarray, rate_hz: float) -> float:
     return float(np.percentile(r, 10))
 
 
-def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.35,
-                envelope_gain: float = 0.15, floor_sigma: float = 4.0) -> Transitions:
+def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
+                envelope_gain: float = 0.15, floor_sigma: float = 4.5) -> Transitions:
     """Detect pulse peaks in a conditioned head signal ``x``.
 
     Parameters
@@ -173,8 +173,25 @@ def _walk(x, idx, sgn, amp, rate_hz, threshold, gain):
         if run >= 2:
             d = out_i[-1] - out_i[-2]
             interval = d if not np.isfinite(interval) else interval + 0.2 * (d - interval)
-        env = env + gain * (min(float(amp[j]), 3 * env) - env)
+        if amp[j] > 0.6 * env:      # weak pulses (and noise) do not drag the envelope down
+            env = env + gain * (min(float(amp[j]), 3 * env) - env)
     return out_i, out_env, out_flag
+
+
+def auto_lowpass_hz(tr: Transitions, rate_hz: float, *, factor: float = 1.0) -> float | None:
+    """Low-pass corner (Hz) matched to the pulse rate: ``factor`` / the 10th-percentile interval.
+
+    The shortest F2F interval is a half cell h; a pulse's spectrum lies mostly below 1/h for the
+    PW50 of a working channel (PW50 ≲ 0.6 of a cell), so a corner at 1/h keeps the pulses and
+    drops the noise above them (common practice).  None when there are too few transitions or
+    the corner would sit near Nyquist anyway.
+    """
+    d = np.diff(tr.times_s)
+    d = d[(d > 0) & (d < 0.02)]
+    if d.size < 16:
+        return None
+    f = factor / float(np.percentile(d, 10))
+    return f if f < 0.4 * rate_hz else None
 
 
 def _parabolic_times(x: np.ndarray, i: np.ndarray) -> np.ndarray:

@@ -2,7 +2,8 @@
 
 A capture may hold several swipes separated by quiet stretches.  A new read starts where
 the gap between transitions exceeds ``gap_factor`` times the local typical interval (the
-running median of the neighbouring intervals) and ``min_gap_s``; a stretch with fewer than
+running median of the neighbouring intervals) and ``min_gap_s``, or exceeds ``max_gap_s``
+outright (no card has cells that long: 20 ms is a 75 bpi cell at 1.7 cm/s); a stretch with fewer than
 ``min_transitions`` transitions is noise, not a read.
 """
 
@@ -31,7 +32,7 @@ class Segment:
 
 
 def segment(tr: Transitions, *, gap_factor: float = 12.0, min_gap_s: float = 0.005,
-            min_transitions: int = 24) -> list[Segment]:
+            max_gap_s: float = 0.02, min_transitions: int = 24) -> list[Segment]:
     """Split ``tr`` into reads; see the module docstring."""
     n = len(tr)
     if n < min_transitions:
@@ -42,7 +43,7 @@ def segment(tr: Transitions, *, gap_factor: float = 12.0, min_gap_s: float = 0.0
     left = np.concatenate(([typical[0]], typical[:-1]))
     right = np.concatenate((typical[1:], [typical[-1]]))
     ref = np.minimum(left, right)
-    breaks = np.flatnonzero((d > gap_factor * ref) & (d > min_gap_s)) + 1
+    breaks = np.flatnonzero(((d > gap_factor * ref) & (d > min_gap_s)) | (d > max_gap_s)) + 1
     edges = np.concatenate(([0], breaks, [n]))
     out = []
     for a, b in zip(edges[:-1], edges[1:]):

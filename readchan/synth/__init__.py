@@ -131,7 +131,9 @@ class SynthSpec:
     speed : the swipe speed profile.
     pulse : the isolated-pulse model (``KarlqvistPulse`` or ``LorentzianPulse``).
     rate_hz : sample rate in Hz.
-    amplitude : isolated-pulse peak at the mean speed, in output units.
+    amplitude : isolated-pulse peak at the reference speed, in output units.
+    reference_cm_s : the speed at which an isolated pulse peaks at ``amplitude``; None for
+        the profile's mean speed (so that ``amplitude`` sets the capture's level).
     impairments : see :class:`Impairments`.
     swipes : number of identical swipes in the capture.
     lead_s : quiet time before the first and after the last swipe, in seconds.
@@ -145,6 +147,7 @@ class SynthSpec:
     pulse: PulseModel = field(default_factory=KarlqvistPulse)
     rate_hz: float = 48_000.0
     amplitude: float = 0.5
+    reference_cm_s: float | None = None
     impairments: Impairments = field(default_factory=Impairments)
     swipes: int = 1
     lead_s: float = 0.02
@@ -159,6 +162,8 @@ class SynthSpec:
             raise ParameterError(f"sample rate must be between 1 kHz and 100 MHz, was {self.rate_hz!r}")
         if not math.isfinite(self.amplitude) or not 0 < self.amplitude <= 1e6:
             raise ParameterError(f"amplitude must be > 0, was {self.amplitude!r}")
+        if self.reference_cm_s is not None and not (math.isfinite(self.reference_cm_s) and self.reference_cm_s > 0):
+            raise ParameterError(f"reference speed must be > 0 cm/s, was {self.reference_cm_s!r}")
         if not 1 <= self.swipes <= 1000:
             raise ParameterError(f"swipes must be between 1 and 1000, was {self.swipes!r}")
         for name in ("lead_s", "gap_s"):
@@ -226,7 +231,7 @@ def synthesize(spec: SynthSpec) -> SynthResult:
         i0, i1 = np.searchsorted(t, [t0, t0 + swipe_s])
         ts = t[i0:i1]
         x_head = np.interp(ts, tg, xg)
-        v_rel = spec.speed.speed_cm_s(x_head / card_m) / spec.speed.mean_cm_s
+        v_rel = spec.speed.speed_cm_s(x_head / card_m) / (spec.reference_cm_s or spec.speed.mean_cm_s)
         for ch, track in enumerate(spec.tracks):
             cell = track.cell_m / (1 + imp.density_error)
             nominal = FIRST_TRANSITION_M + f2f_positions(track.bits, cell)
