@@ -118,6 +118,10 @@ MIN_CLOCKING_ZEROS = 6
 zeros (ISO/IEC 7811-2), while a sentinel pattern found in noise almost never follows six."""
 
 
+MIN_REGULARITY = 0.75
+"""Smallest :attr:`BitStream.regularity` of a stretch of transitions taken for a recording."""
+
+
 def _clocked(bits: np.ndarray, fr: Frame, n: int) -> bool:
     """True when the ``n`` bits before the start sentinel, in reading order, are all zero."""
     i0 = int(fr.bit_index[0, 0])
@@ -175,6 +179,8 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
     for seg in segs:
         sub = tr.subset(seg.start, seg.stop)
         bs = recover_bits(sub.times_s, loop_gain=settings.loop_gain)
+        if bs.regularity < MIN_REGULARITY:
+            continue
         fr = frame(bs.bits, settings.fmt) if settings.fmt is not None else frame_auto(bs.bits)
         if fr is None or not _clocked(bs.bits, fr, MIN_CLOCKING_ZEROS):
             continue

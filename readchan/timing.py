@@ -66,6 +66,18 @@ class BitStream:
     def __len__(self) -> int:
         return int(self.bits.size)
 
+    @property
+    def regularity(self) -> float:
+        """Fraction of intervals within ±0.15 of a half cell or ±0.2 of a full cell.
+
+        Close to 1 for an F2F recording, far lower for noise, whose intervals spread
+        continuously (common practice for telling a swipe from noise).
+        """
+        r = self.ratio
+        if r.size == 0:
+            return 0.0
+        return float(np.mean((np.abs(r - 0.5) < 0.15) | (np.abs(r - 1.0) < 0.2)))
+
 
 def initial_period(intervals_s: np.ndarray, n: int = 16) -> float:
     """Initial bit period in seconds from the leading clocking zeros (see module docstring)."""
