@@ -22,7 +22,9 @@ EXIT_INTERNAL = 4
 
 app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
                   help="Decode, diagnose and synthesize magnetic read-channel captures (F2F magnetic stripe).")
-out = Console(soft_wrap=True)
+out = Console()
+if not out.is_terminal:
+    out = Console(width=120)
 err = Console(stderr=True)
 
 

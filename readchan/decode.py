@@ -186,7 +186,9 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
             continue
         track = guess_track(fr.format, len(fr.text), channel, n_channels, settings.track)
         speed = mean_speed_cm_s(bs, track.density_bpi) if track else None
-        reads.append(Read(source, channel, seg, sub, bs, fr, parse_fields(fr.text, fr.format), track, speed))
+        # track 3 follows ISO 4909, whose fields readchan does not interpret
+        fields = parse_fields(fr.text, fr.format) if not (track and track.number == 3) else None
+        reads.append(Read(source, channel, seg, sub, bs, fr, fields, track, speed))
     return ChannelResult(channel, kind, cond, tr, tuple(segs), tuple(reads), hum)
 
 

@@ -6,6 +6,7 @@ Account numbers are masked in every output unless the caller passes ``unmask=Tru
 
 from __future__ import annotations
 
+import numpy as np
 from rich.console import Console
 from rich.table import Table
 from rich.text import Text
@@ -27,7 +28,7 @@ def read_dict(r: Read, *, unmask: bool = False) -> dict:
         "text": mask_text(f.text, f.format, unmask),
         "valid": bool(f.valid),
         "complete": bool(f.complete),
-        "parity_ok": [bool(p) for p in f.parity_ok],
+        "parity_failed": [int(i) for i in (~np.asarray(f.parity_ok, bool)).nonzero()[0]],
         "lrc_ok": bool(f.lrc_ok),
         "corrected": [int(c) for c in f.corrected],
         "revised_bits": [int(b) for b in f.revised_bits],
@@ -56,11 +57,11 @@ def _verdict(ok: bool, good: str = "ok", bad: str = "FAIL") -> Text:
 
 
 def decode_table(reads: list[Read], *, unmask: bool = False, title: str | None = None) -> Table:
-    """A rich table with one row per read."""
-    t = Table(title=title, show_lines=False, header_style="bold")
-    for col in ("ch", "format", "dir", "characters", "parity", "LRC", "bits", "cm/s", "time s"):
-        t.add_column(col, overflow="fold", no_wrap=col != "characters")
-    for r in reads:
+    """A rich table with one row per read; the characters follow in :func:`text_lines`."""
+    t = Table(title=title, show_lines=False, header_style="bold", title_justify="left")
+    for col in ("read", "ch", "track", "format", "direction", "chars", "parity", "LRC", "bits", "cm/s", "time s"):
+        t.add_column(col, no_wrap=True)
+    for n, r in enumerate(reads):
         f = r.frame
         bad = [i for i, ok in enumerate(f.parity_ok) if not ok]
         parity = _verdict(not bad, "ok", f"{len(bad)} bad")
@@ -68,24 +69,41 @@ def decode_table(reads: list[Read], *, unmask: bool = False, title: str | None =
             parity = Text(f"corrected {','.join(map(str, f.corrected))}", style="yellow")
         lrc = _verdict(f.lrc_ok) if f.complete else Text("no end", style="bold red")
         speed = "" if r.mean_speed_cm_s is None else f"{r.mean_speed_cm_s:.1f}"
-        t.add_row(str(r.channel), f.format, f.direction, mask_text(f.text, f.format, unmask), parity, lrc,
-                  str(len(r.bits)), speed, f"{r.start_s:.3f}–{r.end_s:.3f}")
+        t.add_row(str(n), str(r.channel), str(r.track.number) if r.track else "?", f.format, f.direction,
+                  str(len(f.text)), parity, lrc, str(len(r.bits)), speed, f"{r.start_s:.3f}–{r.end_s:.3f}")
     return t
 
 
-def fields_table(reads: list[Read], *, unmask: bool = False) -> Table | None:
-    """A rich table of the parsed card fields, or None if no read has any."""
-    rows = [(r, r.fields.to_dict(unmask=unmask)) for r in reads if r.fields is not None]
-    if not rows:
-        return None
-    t = Table(title="fields", header_style="bold")
-    for col in ("ch", "layout", "account", "Luhn", "name", "expiry", "service", "discretionary"):
-        t.add_column(col, overflow="fold")
-    for r, d in rows:
-        t.add_row(str(r.channel), d.get("layout", ""), str(d.get("pan", "")), _verdict(bool(d.get("luhn_ok"))),
-                  str(d.get("name") or ""), str(d.get("expiry_yymm") or ""), str(d.get("service_code") or ""),
-                  str(d.get("discretionary") or ""))
-    return t
+def text_lines(reads: list[Read], *, unmask: bool = False) -> list[Text]:
+    """One line per read: its number, a validity mark and its characters (account masked)."""
+    lines = []
+    for n, r in enumerate(reads):
+        mark = Text("valid  ", style="green") if r.valid else Text("INVALID", style="bold red")
+        line = Text(f"read {n}  ")
+        line.append(mark)
+        line.append("  " + mask_text(r.frame.text, r.frame.format, unmask))
+        lines.append(line)
+    return lines
+
+
+def field_lines(reads: list[Read], *, unmask: bool = False) -> list[Text]:
+    """One line per read with parsed ISO/IEC 7813 fields (account masked unless ``unmask``)."""
+    lines = []
+    for n, r in enumerate(reads):
+        if r.fields is None:
+            continue
+        d = r.fields.to_dict(unmask=unmask)
+        line = Text(f"read {n}  {d['layout']}: account {d['pan']} (Luhn ")
+        line.append(_verdict(bool(d["luhn_ok"]), "ok", "FAIL"))
+        line.append(")")
+        for key, label in (("name", "name"), ("expiry_yymm", "expiry"), ("service_code", "service"),
+                           ("discretionary", "discretionary")):
+            if d.get(key):
+                line.append(f" · {label} {d[key]}")
+        for p in d.get("problems", []):
+            line.append(f" · {p}", style="yellow")
+        lines.append(line)
+    return lines
 
 
 def print_decode(console: Console, source: str, results: list[ChannelResult], *, unmask: bool = False) -> None:
@@ -95,6 +113,7 @@ def print_decode(console: Console, source: str, results: list[ChannelResult], *,
         console.print(f"{source}: no framed data ({n_tr} transitions found)")
         return
     console.print(decode_table(reads, unmask=unmask, title=source))
-    ft = fields_table(reads, unmask=unmask)
-    if ft is not None:
-        console.print(ft)
+    for line in text_lines(reads, unmask=unmask):
+        console.print(line, soft_wrap=True)
+    for line in field_lines(reads, unmask=unmask):
+        console.print(line, soft_wrap=True)
