@@ -25,7 +25,7 @@ app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_
 out = Console()
 if not out.is_terminal:
     out = Console(width=120)
-err = Console(stderr=True)
+err = Console(stderr=True, soft_wrap=True)
 
 
 class Kind(str, Enum):
@@ -199,12 +199,10 @@ def main() -> None:
     except KeyboardInterrupt:
         sys.exit(130)
     except Exception as e:  # click usage errors and anything unforeseen
-        import click
-
-        if isinstance(e, click.exceptions.ClickException):
+        if hasattr(e, "format_message") and hasattr(e, "exit_code"):   # click/typer usage errors
             err.print(f"readchan: error: {e.format_message()}", highlight=False, markup=False)
             sys.exit(EXIT_BAD_INPUT)
-        if isinstance(e, click.exceptions.Abort):
+        if type(e).__name__ == "Abort":
             sys.exit(130)
         if os.environ.get("READCHAN_DEBUG"):
             raise
