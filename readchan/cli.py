@@ -209,3 +209,8 @@ def main() -> None:
         err.print(f"readchan: internal error: {type(e).__name__}: {e} (set READCHAN_DEBUG=1 for details)",
                   highlight=False, markup=False)
         sys.exit(EXIT_INTERNAL)
+
+
+# Further commands live in their own modules and register themselves on ``app``.
+from readchan import cli_inspect as _cli_inspect  # noqa: E402,F401
+from readchan import cli_sweep as _cli_sweep  # noqa: E402,F401

@@ -82,6 +82,69 @@ def _check_corner(name: str, f_hz: float, nyq: float) -> None:
         raise ParameterError(f"{name} corner must be between 0 and {nyq:g} Hz (Nyquist), was {f_hz!r}")
 
 
+@dataclass(frozen=True)
+class HumFit:
+    """Mains hum fitted on the quiet stretches of a capture.
+
+    Attributes
+    ----------
+    freq_hz : fitted fundamental frequency in Hz (near 50 or 60).
+    amplitude : fundamental amplitude (capture units, peak).
+    coef : least-squares coefficients (cos, sin) for the fundamental and harmonics 2 and 3.
+    residual_rms : RMS of what the fit leaves on the quiet samples.
+    """
+
+    freq_hz: float
+    amplitude: float
+    coef: np.ndarray
+    residual_rms: float
+
+    def waveform(self, n: int, rate_hz: float) -> np.ndarray:
+        """The fitted hum over samples 0..n-1."""
+        return _hum_basis(np.arange(n) / rate_hz, self.freq_hz) @ self.coef
+
+
+def _hum_basis(t: np.ndarray, f: float) -> np.ndarray:
+    cols = []
+    for h in (1, 2, 3):
+        w = 2 * np.pi * f * h * t
+        cols += [np.cos(w), np.sin(w)]
+    return np.stack(cols, axis=1)
+
+
+def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: float = 8.0) -> HumFit | None:
+    """Fit mains hum (50 or 60 Hz ± 0.6 Hz, with harmonics 2 and 3) to the samples where
+    ``quiet`` is True, by linear least squares on a frequency grid of 0.02 Hz.
+
+    Fitting only where there are no pulses keeps the data out of the estimate: a stripe's
+    own bit pattern can have a spectral line near 50 or 60 Hz, which a notch would eat.
+    Returns None unless at least three mains cycles of quiet samples exist and the fitted
+    amplitude exceeds ``significance`` × its standard error (σ·√(2/N)) and 2 % of the
+    capture's peak level.
+    """
+    q = np.flatnonzero(quiet)
+    if q.size < 3 * rate_hz / 50.0:
+        return None
+    step = max(1, int(rate_hz // 2000), q.size // 8000)   # ~2 kHz sampling, at most ~8000 points
+    q = q[::step]
+    t, y = q / rate_hz, x[q] - np.mean(x[q])
+    best = None
+    for mains in (50.0, 60.0):
+        for f in np.arange(mains - 0.6, mains + 0.6001, 0.02):
+            A = _hum_basis(t, f)
+            coef, *_ = np.linalg.lstsq(A, y, rcond=None)
+            res = float(np.sum((y - A @ coef) ** 2))
+            if best is None or res < best[0]:
+                best = (res, f, coef)
+    res, f, coef = best
+    sigma = math.sqrt(res / max(q.size - 6, 1))
+    amp = float(math.hypot(coef[0], coef[1]))
+    peak = float(np.percentile(np.abs(x), 99.9))
+    if amp < significance * sigma * math.sqrt(2.0 / q.size) or amp < 0.02 * peak:
+        return None
+    return HumFit(float(f), amp, coef, sigma)
+
+
 def estimate_hum_hz(x: np.ndarray, rate_hz: float, *, ratio_db: float = 12.0) -> float | None:
     """Return 50.0 or 60.0 if the spectrum holds a mains line ``ratio_db`` above its
     neighbourhood (Welch periodogram, 0.5 Hz resolution or finer), else None."""

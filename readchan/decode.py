@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from readchan.capture import Capture
-from readchan.condition import ConditionSettings, Conditioned, condition, estimate_hum_hz
+from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum
 from readchan.detect import Transitions, auto_lowpass_hz, classify_kind, detect_head, detect_logic
 from readchan.errors import ParameterError
 from readchan.fields import CardFields, parse_fields
@@ -150,6 +150,42 @@ def mean_speed_cm_s(bits: BitStream, density_bpi: float) -> float:
     return float(np.mean(2.54 / (density_bpi * bits.period_s)))
 
 
+def quiet_mask(n: int, rate_hz: float, segments: list[Segment], *, guard_s: float = 0.01) -> np.ndarray:
+    """True for samples farther than ``guard_s`` from every segment (where no pulses are)."""
+    quiet = np.ones(n, bool)
+    for sg in segments:
+        a = max(0, int((sg.start_s - guard_s) * rate_hz))
+        b = min(n, int((sg.end_s + guard_s) * rate_hz) + 1)
+        quiet[a:b] = False
+    return quiet
+
+
+def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings, channel: int):
+    """Head-signal front end: condition, detect; then refine with a hum fit on the quiet
+    stretches (or a fixed notch) and a low-pass matched to the pulse rate, and detect again."""
+    cs = settings.condition
+    cond = condition(x, rate_hz, cs, channel=channel)
+    tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
+    hum = None
+    y = x
+    if settings.notch == "auto":
+        fit = fit_hum(cond.signal, rate_hz, quiet_mask(x.size, rate_hz, segment(tr)))
+        if fit is not None:
+            hum = fit.freq_hz
+            y = cond.signal - fit.waveform(x.size, rate_hz)
+    elif settings.notch != "off":
+        hum = float(settings.notch)
+        cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
+    if settings.auto_lowpass and cs.lowpass_hz is None:
+        f_lp = auto_lowpass_hz(tr, rate_hz)
+        if f_lp is not None:
+            cs = ConditionSettings(cs.highpass_hz, f_lp, cs.notch_hz, cs.notch_q)
+    if cs is not settings.condition or y is not x:
+        cond = condition(y, rate_hz, cs, channel=channel)
+        tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
+    return cond, tr, hum
+
+
 def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = DecodeSettings(), *,
                    channel: int = 0, n_channels: int = 1, source: str = "") -> ChannelResult:
     """Decode one channel's samples ``x`` at ``rate_hz``."""
@@ -159,25 +195,18 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
     if kind == "logic":
         tr = detect_logic(x, rate_hz)
     else:
-        cs = settings.condition
-        if settings.notch == "auto":
-            hum = estimate_hum_hz(x - np.median(x), rate_hz)
-        elif settings.notch != "off":
-            hum = float(settings.notch)
-        if hum:
-            cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
-        cond = condition(x, rate_hz, cs, channel=channel)
-        tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
-        if settings.auto_lowpass and cs.lowpass_hz is None:
-            f_lp = auto_lowpass_hz(tr, rate_hz)
-            if f_lp is not None:
-                cs = ConditionSettings(cs.highpass_hz, f_lp, cs.notch_hz, cs.notch_q)
-                cond = condition(x, rate_hz, cs, channel=channel)
-                tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
+        cond, tr, hum = _detect_head_channel(x, rate_hz, settings, channel)
     segs = segment(tr)
     reads = []
     for seg in segs:
-        sub = tr.subset(seg.start, seg.stop)
+        bs = recover_bits(tr.times_s[seg.start:seg.stop], loop_gain=settings.loop_gain)
+        span = bs.regular_span()
+        if span is None:
+            continue
+        # trim the noise detections around the recording, and time the read by what is left
+        a, b = seg.start + span[0], seg.start + span[1]
+        seg = Segment(a, b, float(tr.times_s[a]), float(tr.times_s[b - 1]))
+        sub = tr.subset(a, b)
         bs = recover_bits(sub.times_s, loop_gain=settings.loop_gain)
         if bs.regularity < MIN_REGULARITY:
             continue

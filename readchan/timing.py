@@ -67,16 +67,31 @@ class BitStream:
         return int(self.bits.size)
 
     @property
+    def regular(self) -> np.ndarray:
+        """Per interval: True when it lies within ±0.15 of a half cell or ±0.2 of a full cell."""
+        r = self.ratio
+        return (np.abs(r - 0.5) < 0.15) | (np.abs(r - 1.0) < 0.2)
+
+    def regular_span(self, run: int = 8) -> tuple[int, int] | None:
+        """Transition indices (a, b) spanning from the first to the last run of ``run``
+        regular intervals: the part of a read that is recording, not the noise around it."""
+        ok = self.regular.astype(np.int64)
+        if ok.size < run:
+            return None
+        win = np.convolve(ok, np.ones(run, np.int64), mode="valid") == run
+        hits = np.flatnonzero(win)
+        if hits.size == 0:
+            return None
+        return int(hits[0]), int(hits[-1] + run + 1)
+
+    @property
     def regularity(self) -> float:
         """Fraction of intervals within ±0.15 of a half cell or ±0.2 of a full cell.
 
         Close to 1 for an F2F recording, far lower for noise, whose intervals spread
         continuously (common practice for telling a swipe from noise).
         """
-        r = self.ratio
-        if r.size == 0:
-            return 0.0
-        return float(np.mean((np.abs(r - 0.5) < 0.15) | (np.abs(r - 1.0) < 0.2)))
+        return float(np.mean(self.regular)) if self.ratio.size else 0.0
 
 
 def initial_period(intervals_s: np.ndarray, n: int = 16) -> float:

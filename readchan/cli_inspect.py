@@ -1,0 +1,1 @@
+"""`readchan inspect`: the front-end diagnostics report (registered on the main app)."""

@@ -1,0 +1,1 @@
+"""`readchan sweep`: margin sweeps over one impairment (registered on the main app)."""
