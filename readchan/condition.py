@@ -57,7 +57,7 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
     """Condition one channel of a head signal; see :class:`ConditionSettings`."""
     x = np.asarray(samples, dtype=float)
     nyq = rate_hz / 2
-    dc = float(np.median(x))
+    dc = float(np.median(x[:: max(1, x.size // 200_000)]))
     y = x - dc
     pad = min(y.size - 1, int(3 * rate_hz / max(settings.highpass_hz or 1.0, 1.0)))
     if settings.highpass_hz:
@@ -75,6 +75,13 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
         sos = sps.butter(4, settings.lowpass_hz, btype="lowpass", fs=rate_hz, output="sos")
         y = sps.sosfiltfilt(sos, y)
     return Conditioned(signal=np.ascontiguousarray(y), rate_hz=float(rate_hz), dc_offset=dc, channel=channel)
+
+
+def lowpass(c: Conditioned, lowpass_hz: float) -> Conditioned:
+    """``c`` through the 4th-order zero-phase Butterworth low-pass at ``lowpass_hz`` (Hz)."""
+    _check_corner("lowpass", lowpass_hz, c.rate_hz / 2)
+    sos = sps.butter(4, lowpass_hz, btype="lowpass", fs=c.rate_hz, output="sos")
+    return Conditioned(np.ascontiguousarray(sps.sosfiltfilt(sos, c.signal)), c.rate_hz, c.dc_offset, c.channel)
 
 
 def _check_corner(name: str, f_hz: float, nyq: float) -> None:
@@ -100,8 +107,17 @@ class HumFit:
     residual_rms: float
 
     def waveform(self, n: int, rate_hz: float) -> np.ndarray:
-        """The fitted hum over samples 0..n-1."""
-        return _hum_basis(np.arange(n) / rate_hz, self.freq_hz) @ self.coef
+        """The fitted hum over samples 0..n-1.
+
+        The hum is periodic, so one period is tabulated at 8192 phases and looked up by each
+        sample's phase (error below 0.08 % of the amplitude).
+        """
+        table_n = 8192
+        table = _hum_basis(np.arange(table_n) / (table_n * self.freq_hz), self.freq_hz) @ self.coef
+        phase = np.arange(n, dtype=float)
+        phase *= self.freq_hz / rate_hz
+        phase -= np.floor(phase)
+        return table[(phase * table_n).astype(np.int64) % table_n]
 
 
 def _hum_basis(t: np.ndarray, f: float) -> np.ndarray:

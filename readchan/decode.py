@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from readchan.capture import Capture
-from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum
+from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum, lowpass
 from readchan.detect import Transitions, auto_lowpass_hz, classify_kind, detect_head, detect_logic
 from readchan.errors import ParameterError
 from readchan.fields import CardFields, parse_fields
@@ -161,27 +161,29 @@ def quiet_mask(n: int, rate_hz: float, segments: list[Segment], *, guard_s: floa
 
 
 def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings, channel: int):
-    """Head-signal front end: condition, detect; then refine with a hum fit on the quiet
-    stretches (or a fixed notch) and a low-pass matched to the pulse rate, and detect again."""
+    """Head-signal front end: condition and detect; then refine with the hum fitted on the quiet
+    stretches (or a fixed notch) taken out and a low-pass matched to the pulse rate, and detect
+    again on the refined signal."""
     cs = settings.condition
+    hum = None
+    if settings.notch not in ("auto", "off"):
+        hum = float(settings.notch)
+        cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
     cond = condition(x, rate_hz, cs, channel=channel)
     tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
-    hum = None
-    y = x
+    refined = False
     if settings.notch == "auto":
         fit = fit_hum(cond.signal, rate_hz, quiet_mask(x.size, rate_hz, segment(tr)))
         if fit is not None:
             hum = fit.freq_hz
-            y = cond.signal - fit.waveform(x.size, rate_hz)
-    elif settings.notch != "off":
-        hum = float(settings.notch)
-        cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
+            cond = Conditioned(cond.signal - fit.waveform(x.size, rate_hz), rate_hz, cond.dc_offset, channel)
+            refined = True
     if settings.auto_lowpass and cs.lowpass_hz is None:
         f_lp = auto_lowpass_hz(tr, rate_hz)
         if f_lp is not None:
-            cs = ConditionSettings(cs.highpass_hz, f_lp, cs.notch_hz, cs.notch_q)
-    if cs is not settings.condition or y is not x:
-        cond = condition(y, rate_hz, cs, channel=channel)
+            cond = lowpass(cond, f_lp)
+            refined = True
+    if refined:
         tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
     return cond, tr, hum
 

@@ -6,10 +6,9 @@ The detector
 
 1. finds candidate peaks of both polarities with ``scipy.signal.find_peaks`` above a floor set
    from the noise (the RMS of the quietest stretches) and from the signal's own size;
-2. walks the candidates in time order (a loop over candidates, not samples) keeping an
-   amplitude envelope that follows the local pulse amplitude, which rises and falls with swipe
-   speed; a candidate counts when it exceeds ``threshold × envelope`` (the hysteresis: a
-   new pulse must be of the opposite polarity to the last one accepted);
+2. keeps an amplitude envelope that follows the local pulse amplitude, which rises and falls
+   with swipe speed (a running percentile over neighbouring candidates); a candidate counts
+   when it exceeds ``threshold × envelope``;
 3. applies the alternation rule: two accepted candidates of the same polarity in a row mean
    either a noise peak (the smaller one, close to the other, is dropped and flagged ``EXTRA``)
    or a missed opposite pulse, which is rescued from the deepest opposite excursion between
@@ -27,6 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy import signal as sps
+from scipy.ndimage import median_filter, percentile_filter
 
 FLAG_EXTRA = np.uint8(1)
 """A same-polarity neighbour of this transition was dropped as a noise peak."""
@@ -77,6 +77,7 @@ def classify_kind(x: np.ndarray) -> str:
     A comparator output or flux waveform spends its time at its two rails; a head signal
     spends it near the baseline between pulses (common practice).
     """
+    x = x[:: max(1, x.size // 200_000)]
     lo, hi = np.percentile(x, [1.0, 99.0])
     span = hi - lo
     if not span > 0:
@@ -99,7 +100,7 @@ def noise_rms(x: np.ndarray, rate_hz: float) -> float:
 
 
 def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
-                envelope_gain: float = 0.15, floor_sigma: float = 4.5) -> Transitions:
+                floor_sigma: float = 4.5, window: int = 15) -> Transitions:
     """Detect pulse peaks in a conditioned head signal ``x``.
 
     Parameters
@@ -107,75 +108,97 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     x : conditioned head signal (baseline at 0).
     rate_hz : sample rate in Hz.
     threshold : fraction of the local envelope a pulse must exceed.
-    envelope_gain : gain of the envelope's exponential tracking, per accepted pulse.
     floor_sigma : candidate floor in units of the noise RMS.
+    window : number of neighbouring candidates the local envelope is taken over.
+
+    Notes
+    -----
+    Candidates are *lobes*: stretches between crossings of ± half the floor (hysteresis), one
+    candidate at each lobe's extreme, so noise ripple on a pulse's crest is never a second
+    pulse and candidates alternate in polarity by construction.  The local envelope at a
+    candidate is the 75th percentile of |peak| over the ``window`` candidates around it
+    (``scipy.ndimage.percentile_filter``), so it follows the amplitude as it rises and falls
+    with swipe speed without a per-sample loop.  A candidate is a pulse when it exceeds
+    ``threshold × envelope``; where two pulses of one polarity then follow each other, the
+    alternation rule is resolved one case at a time (the only loop, over those cases).
     """
     x = np.asarray(x, dtype=float)
     sigma = noise_rms(x, rate_hz)
-    big = float(np.percentile(np.abs(x), 99.9)) if x.size else 0.0
-    floor = max(floor_sigma * sigma, 0.02 * big)
-    floor = min(floor, 0.3 * big) if big > 0 else floor
+    step = max(1, x.size // 500_000)
+    big = float(np.percentile(np.abs(x[::step]), 99.9)) if x.size else 0.0
     if not big > 0:
         return _empty("head", rate_hz, sigma)
-    pos, _ = sps.find_peaks(x, height=floor, prominence=0.5 * floor)
-    neg, _ = sps.find_peaks(-x, height=floor, prominence=0.5 * floor)
-    idx = np.concatenate((pos, neg))
-    order = np.argsort(idx, kind="stable")
-    idx = idx[order]
-    sgn = np.concatenate((np.ones(pos.size, np.int8), -np.ones(neg.size, np.int8)))[order]
+    floor = min(max(floor_sigma * sigma, 0.02 * big), 0.3 * big)
+    idx, sgn = _lobe_peaks(x, 0.5 * floor)
     amp = np.abs(x[idx])
-    keep_i, keep_env, keep_flag = _walk(x, idx, sgn, amp, rate_hz, threshold, envelope_gain)
-    keep_i = np.asarray(keep_i, dtype=np.int64)
-    times = _parabolic_times(x, keep_i) / rate_hz
-    return Transitions(times, keep_i, x[keep_i] if keep_i.size else np.zeros(0),
-                       np.asarray(keep_env, float), np.asarray(keep_flag, np.uint8), float(rate_hz), "head", sigma)
+    tall = amp >= floor
+    idx, sgn, amp = idx[tall], sgn[tall], amp[tall]
+    if idx.size == 0:
+        return _empty("head", rate_hz, sigma)
+    env = percentile_filter(amp, 75, size=min(window, idx.size), mode="nearest")
+    strong = amp >= threshold * env
+    idx, env, flags = _alternate(x, idx, sgn, amp, env, strong, threshold)
+    times = _parabolic_times(x, idx) / rate_hz
+    return Transitions(times, idx, x[idx], env, flags, float(rate_hz), "head", sigma)
 
 
-def _walk(x, idx, sgn, amp, rate_hz, threshold, gain):
-    """The per-candidate state machine of :func:`detect_head` (a loop over candidates)."""
-    out_i: list[int] = []
-    out_env: list[float] = []
-    out_flag: list[int] = []
-    env = 0.0
-    interval = np.inf          # running transition interval, samples (inf until known)
-    run = 0                    # transitions accepted since the last reset
-    reset_gap = 0.03 * rate_hz
-    for j in range(idx.size):
-        i = int(idx[j])
-        if run == 0 or i - out_i[-1] > max(reset_gap, 20 * interval):
-            ahead = amp[j: j + 12]
-            env = float(np.median(np.sort(ahead)[-8:]))
-            interval, run = np.inf, 0
-        if amp[j] < threshold * env:
+def _lobe_peaks(x: np.ndarray, h: float) -> tuple[np.ndarray, np.ndarray]:
+    """Index and sign of the extreme of every lobe of ``x`` (hysteresis ± ``h``), vectorised."""
+    state = np.where(x > h, 1, np.where(x < -h, -1, 0)).astype(np.int8)
+    pos = np.where(state != 0, np.arange(x.size), 0)
+    np.maximum.accumulate(pos, out=pos)
+    state = state[pos]                       # hold the last definite side through the band
+    nz = np.flatnonzero(state)
+    if nz.size == 0:
+        return np.zeros(0, np.int64), np.zeros(0, np.int8)
+    state[: nz[0]] = state[nz[0]]
+    starts = np.concatenate(([0], np.flatnonzero(np.diff(state)) + 1))
+    v = x * state
+    top = np.maximum.reduceat(v, starts)
+    run = np.repeat(np.arange(starts.size), np.diff(np.concatenate((starts, [x.size]))))
+    hits = np.flatnonzero(v == top[run])
+    first = hits[np.concatenate(([True], run[hits][1:] != run[hits][:-1]))]
+    return first.astype(np.int64), state[first]
+
+
+def _alternate(x, idx, sgn, amp, env, strong, threshold):
+    """Keep the strong candidates and enforce the alternation rule between them.
+
+    Between two strong candidates of the same polarity, the largest weaker candidate of the
+    opposite polarity is taken as a (weak) pulse if it exceeds half the threshold; else the
+    two are one pulse if closer than 0.6 of the local interval (the smaller dropped, flag
+    ``EXTRA``), or a pulse is missing between them (flag ``MISSING``).
+    """
+    S = np.flatnonzero(strong)
+    flags = np.zeros(S.size, np.uint8)
+    if S.size < 2:
+        return idx[S].astype(np.int64), env[S], flags
+    same = np.flatnonzero(sgn[S[1:]] == sgn[S[:-1]])
+    if same.size == 0:
+        return idx[S].astype(np.int64), env[S], flags
+    d = np.diff(idx[S]).astype(float)
+    interval = median_filter(d, size=min(9, d.size), mode="nearest")
+    keep = np.ones(S.size, bool)
+    extra: list[tuple[int, float, int]] = []       # (candidate, envelope, flag) to add
+    for k in same.tolist():
+        a, b = int(S[k]), int(S[k + 1])
+        if not keep[k]:
             continue
-        flag = 0
-        if run and sgn[j] == np.sign(x[out_i[-1]]):
-            prev = out_i[-1]
-            seg = x[prev:i + 1]
-            k = int(np.argmin(seg) if sgn[j] > 0 else np.argmax(seg))
-            dip = -sgn[j] * seg[k]
-            if dip > 0.5 * threshold * env:
-                out_i.append(prev + k)
-                out_env.append(env)
-                out_flag.append(int(FLAG_WEAK))
-                run += 1
-            elif not np.isfinite(interval) or (i - prev) < 0.6 * interval:
-                if amp[j] > abs(x[prev]):
-                    out_i[-1] = i
-                out_flag[-1] |= int(FLAG_EXTRA)
-                continue
-            else:
-                flag = int(FLAG_MISSING)
-        out_i.append(i)
-        out_env.append(env)
-        out_flag.append(flag)
-        run += 1
-        if run >= 2:
-            d = out_i[-1] - out_i[-2]
-            interval = d if not np.isfinite(interval) else interval + 0.2 * (d - interval)
-        if amp[j] > 0.6 * env:      # weak pulses (and noise) do not drag the envelope down
-            env = env + gain * (min(float(amp[j]), 3 * env) - env)
-    return out_i, out_env, out_flag
+        between = np.arange(a + 1, b)
+        between = between[sgn[between] != sgn[a]]
+        if between.size and amp[between].max() > 0.5 * threshold * env[b]:
+            extra.append((int(between[np.argmax(amp[between])]), float(env[b]), int(FLAG_WEAK)))
+        elif idx[b] - idx[a] < 0.6 * interval[k]:
+            drop = k if amp[b] > amp[a] else k + 1
+            keep[drop] = False
+            flags[k if drop == k + 1 else k + 1] |= FLAG_EXTRA
+        else:
+            flags[k + 1] |= FLAG_MISSING
+    cand = np.concatenate((S[keep], np.asarray([e[0] for e in extra], np.int64)))
+    envs = np.concatenate((env[S][keep], np.asarray([e[1] for e in extra])))
+    fl = np.concatenate((flags[keep], np.asarray([e[2] for e in extra], np.uint8)))
+    order = np.argsort(cand, kind="stable")
+    return idx[cand[order]].astype(np.int64), envs[order], fl[order]
 
 
 def auto_lowpass_hz(tr: Transitions, rate_hz: float, *, factor: float = 1.0) -> float | None:

@@ -117,49 +117,46 @@ def recover_bits(times_s: np.ndarray, *, loop_gain: float = 0.25,
         times; when given, the loop is bypassed.
     """
     t = np.asarray(times_s, dtype=float)
-    d = np.diff(t)
-    nb = d.size
-    bits = np.zeros(nb, np.uint8)
-    start = np.zeros(nb)
-    period = np.zeros(nb)
-    margin = np.zeros(nb)
-    flags = np.zeros(nb, np.uint8)
-    first = np.zeros(nb, np.int64)
-    ratio = np.zeros(nb)
+    d_arr = np.diff(t)
+    nb = d_arr.size
     if nb == 0:
-        return BitStream(bits, start, period, margin, flags, first, ratio)
-    ref = period_at(t[:-1]) if period_at is not None else None
-    T = initial_period(d) if ref is None else float(ref[0])
-    k = 0
+        z = np.zeros(0)
+        return BitStream(np.zeros(0, np.uint8), z, z, z, np.zeros(0, np.uint8), np.zeros(0, np.int64), z)
+    ref = period_at(t[:-1]).tolist() if period_at is not None else None
+    T = initial_period(d_arr) if ref is None else float(ref[0])
+    # the loop runs over plain Python lists: one pass over the intervals, no numpy scalars
+    d = d_arr.tolist()
+    bits, start, period, margin, flags, first = [], [], [], [], [], []
+    ratio = [0.0] * nb
+    lone, long_ = int(FLAG_LONE_HALF), int(FLAG_LONG)
     i = 0
     while i < nb:
         if ref is not None:
-            T = float(ref[i])
+            T = ref[i]
         r1 = d[i] / T
         ratio[i] = r1
-        start[k], period[k], first[k] = t[i], T, i
+        start.append(t[i]); period.append(T); first.append(i)
         if r1 >= BOUNDARY or i + 1 >= nb:
-            bits[k] = 0
-            margin[k] = abs(r1 - BOUNDARY) / 0.25
-            if r1 > 1.6:
-                flags[k] |= FLAG_LONG
+            bits.append(0)
+            margin.append(abs(r1 - BOUNDARY) * 4.0)
+            flags.append(long_ if r1 > 1.6 else 0)
             cell = d[i]
             i += 1
         else:
             r2 = d[i + 1] / T
             ratio[i + 1] = r2
-            bits[k] = 1
-            margin[k] = min(abs(r1 - BOUNDARY), abs(r2 - BOUNDARY)) / 0.25
+            bits.append(1)
             if r2 >= BOUNDARY:
-                flags[k] |= FLAG_LONE_HALF
-                margin[k] = 0.0
+                flags.append(lone)
+                margin.append(0.0)
                 cell = 2 * d[i]
                 i += 1
             else:
+                flags.append(0)
+                margin.append(min(abs(r1 - BOUNDARY), abs(r2 - BOUNDARY)) * 4.0)
                 cell = d[i] + d[i + 1]
                 i += 2
         if ref is None and cell < 1.6 * T:
             T += loop_gain * (cell - T)
-        k += 1
-    return BitStream(bits[:k].copy(), start[:k].copy(), period[:k].copy(), margin[:k].copy(),
-                     flags[:k].copy(), first[:k].copy(), ratio)
+    return BitStream(np.asarray(bits, np.uint8), np.asarray(start), np.asarray(period), np.asarray(margin),
+                     np.asarray(flags, np.uint8), np.asarray(first, np.int64), np.asarray(ratio))
