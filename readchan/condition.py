@@ -141,17 +141,20 @@ def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: f
     q = np.flatnonzero(quiet)
     if q.size < 3 * rate_hz / 50.0:
         return None
-    step = max(1, int(rate_hz // 2000), q.size // 8000)   # ~2 kHz sampling, at most ~8000 points
+    step = max(1, int(rate_hz // 2000), q.size // 4000)   # ~2 kHz sampling, at most ~4000 points
     q = q[::step]
     t, y = q / rate_hz, x[q] - np.mean(x[q])
-    best = None
-    for mains in (50.0, 60.0):
-        for f in np.arange(mains - 0.6, mains + 0.6001, 0.02):
-            A = _hum_basis(t, f)
-            coef, *_ = np.linalg.lstsq(A, y, rcond=None)
-            res = float(np.sum((y - A @ coef) ** 2))
-            if best is None or res < best[0]:
-                best = (res, f, coef)
+
+    def fit(f: float, harmonics: bool):
+        A = _hum_basis(t, f) if harmonics else _hum_basis(t, f)[:, :2]
+        coef, *_ = np.linalg.lstsq(A, y, rcond=None)
+        return float(np.sum((y - A @ coef) ** 2)), f, coef
+
+    # coarse search on the fundamental (0.1 Hz), then 0.02 Hz around the best, then harmonics
+    coarse = min((fit(f, False) for m in (50.0, 60.0) for f in np.arange(m - 0.6, m + 0.6001, 0.1)),
+                 key=lambda r: r[0])
+    fine = min((fit(f, False) for f in np.arange(coarse[1] - 0.1, coarse[1] + 0.1001, 0.02)), key=lambda r: r[0])
+    best = fit(fine[1], True)
     res, f, coef = best
     sigma = math.sqrt(res / max(q.size - 6, 1))
     amp = float(math.hypot(coef[0], coef[1]))

@@ -129,10 +129,8 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     if not big > 0:
         return _empty("head", rate_hz, sigma)
     floor = min(max(floor_sigma * sigma, 0.02 * big), 0.3 * big)
-    idx, sgn = _lobe_peaks(x, 0.5 * floor)
+    idx, sgn = _lobe_peaks(x, 0.5 * floor, floor)
     amp = np.abs(x[idx])
-    tall = amp >= floor
-    idx, sgn, amp = idx[tall], sgn[tall], amp[tall]
     if idx.size == 0:
         return _empty("head", rate_hz, sigma)
     env = percentile_filter(amp, 75, size=min(window, idx.size), mode="nearest")
@@ -142,23 +140,25 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     return Transitions(times, idx, x[idx], env, flags, float(rate_hz), "head", sigma)
 
 
-def _lobe_peaks(x: np.ndarray, h: float) -> tuple[np.ndarray, np.ndarray]:
-    """Index and sign of the extreme of every lobe of ``x`` (hysteresis ± ``h``), vectorised."""
+def _lobe_peaks(x: np.ndarray, h: float, floor: float) -> tuple[np.ndarray, np.ndarray]:
+    """Index and sign of the tallest peak above ``floor`` in every lobe of ``x`` (hysteresis
+    ± ``h``): peaks from ``find_peaks``, lobes from the hysteresis state, all vectorised."""
     state = np.where(x > h, 1, np.where(x < -h, -1, 0)).astype(np.int8)
     pos = np.where(state != 0, np.arange(x.size), 0)
     np.maximum.accumulate(pos, out=pos)
     state = state[pos]                       # hold the last definite side through the band
-    nz = np.flatnonzero(state)
-    if nz.size == 0:
+    starts = np.flatnonzero(np.diff(state)) + 1
+    pk_pos, _ = sps.find_peaks(x, height=floor)
+    pk_neg, _ = sps.find_peaks(-x, height=floor)
+    idx = np.concatenate((pk_pos, pk_neg))
+    if idx.size == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int8)
-    state[: nz[0]] = state[nz[0]]
-    starts = np.concatenate(([0], np.flatnonzero(np.diff(state)) + 1))
-    v = x * state
-    top = np.maximum.reduceat(v, starts)
-    run = np.repeat(np.arange(starts.size), np.diff(np.concatenate((starts, [x.size]))))
-    hits = np.flatnonzero(v == top[run])
-    first = hits[np.concatenate(([True], run[hits][1:] != run[hits][:-1]))]
-    return first.astype(np.int64), state[first]
+    lobe = np.searchsorted(starts, idx, side="right")
+    order = np.lexsort((-np.abs(x[idx]), lobe))
+    idx, lobe = idx[order], lobe[order]
+    first = np.concatenate(([True], lobe[1:] != lobe[:-1]))
+    idx = np.sort(idx[first])
+    return idx.astype(np.int64), np.sign(x[idx]).astype(np.int8)
 
 
 def _alternate(x, idx, sgn, amp, env, strong, threshold):

@@ -608,14 +608,19 @@ def plot_sweep(result: SweepResult, path: str | os.PathLike, *, force: bool = Fa
     ax2 = ax.twinx()
     ax2.plot(x, cer, "s--", color="tab:red", label="character error rate")
     ax2.set_ylabel("character error rate (%)", color="tab:red")
-    ax2.set_ylim(bottom=0, top=max(1.0, float(cer.max()) * 1.1))
+    top = max(1.0, float(cer.max()) * 1.1)
+    ax2.set_ylim(-0.03 * top, 1.03 * top)
+    if x.size > 1 and x[0] > x[-1]:
+        ax.invert_xaxis()   # read the curve in sweep order
     i = result.first_failing_step
     if i is not None:
         ax.axvline(x[i], color="k", ls="--", lw=1)
+        lo, hi = ax.get_xlim()
+        right_half = hi != lo and (x[i] - lo) / (hi - lo) > 0.5
         ax.annotate(f"first step below 99 %:\n{spec.parameter} = {x[i]:g}", (x[i], 50),
-                    xytext=(6, 0), textcoords="offset points", fontsize=8)
-    if x.size > 1 and x[0] > x[-1]:
-        ax.invert_xaxis()   # read the curve in sweep order
+                    xytext=(-6 if right_half else 6, 0), textcoords="offset points", fontsize=8,
+                    ha="right" if right_half else "left",
+                    bbox={"boxstyle": "round", "fc": "white", "ec": "0.7"})
     b = spec.base
     ax.set_title(f"track {b.track}, {b.speed_cm_s:g} cm/s {b.profile}, {spec.trials} trials/step, "
                  f"{result.rate_hz / 1000:g} kHz", fontsize=9)
