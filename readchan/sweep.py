@@ -21,10 +21,10 @@ Sweepable parameters
 name        meaning                                                      unit
 ==========  ===========================================================  ==================
 snr_db      white-noise SNR, 20·log10(median |peak| / noise RMS)         dB
-jitter      per-transition jitter, uniform in ± this fraction of a cell  bit cell
-variation   speed change along the swipe, fraction of the mean speed     mean speed
-pw50_cell   Lorentzian isolated-pulse PW50 as a fraction of the cell     bit cell
-hum_level   mains hum amplitude, fraction of the median pulse peak       median peak
+jitter      per-transition jitter, uniform in ± this fraction of a cell  cell
+variation   speed change along the swipe, fraction of the mean speed     of mean speed
+pw50_cell   Lorentzian isolated-pulse PW50 as a fraction of the cell     cell
+hum_level   mains hum amplitude, fraction of the median pulse peak       of median peak
 ==========  ===========================================================  ==================
 
 ``pw50_cell`` is converted to a length once, from the track's ISO density:
@@ -83,10 +83,10 @@ __all__ = [
 
 PARAMETERS = {
     "snr_db": "dB",
-    "jitter": "bit cell",
-    "variation": "mean speed",
-    "pw50_cell": "bit cell",
-    "hum_level": "median peak",
+    "jitter": "cell",
+    "variation": "of mean speed",
+    "pw50_cell": "cell",
+    "hum_level": "of median peak",
 }
 """Sweepable parameters and the unit of their values."""
 
@@ -601,32 +601,26 @@ def plot_sweep(result: SweepResult, path: str | os.PathLike, *, force: bool = Fa
     spec = result.spec
     fig, ax = plt.subplots(figsize=(7.5, 4.5), dpi=120)
     ax.plot(x, success, "o-", color="tab:blue", label="read success")
+    ax.plot(x, cer, "s--", color="tab:red", label="character error rate")
     ax.axhline(100 * SUCCESS_TARGET, color="tab:blue", ls=":", lw=1, label="99 % success")
     ax.set_ylim(-3, 103)
     ax.set_xlabel(f"{spec.parameter} ({spec.unit})")
-    ax.set_ylabel("read success (%)", color="tab:blue")
-    ax2 = ax.twinx()
-    ax2.plot(x, cer, "s--", color="tab:red", label="character error rate")
-    ax2.set_ylabel("character error rate (%)", color="tab:red")
-    top = max(1.0, float(cer.max()) * 1.1)
-    ax2.set_ylim(-0.03 * top, 1.03 * top)
+    ax.set_ylabel("percent of trials / of characters")
     if x.size > 1 and x[0] > x[-1]:
         ax.invert_xaxis()   # read the curve in sweep order
     i = result.first_failing_step
     if i is not None:
-        ax.axvline(x[i], color="k", ls="--", lw=1)
+        ax.axvline(x[i], color="k", ls="--", lw=1, label="first step below 99 %")
         lo, hi = ax.get_xlim()
         right_half = hi != lo and (x[i] - lo) / (hi - lo) > 0.5
-        ax.annotate(f"first step below 99 %:\n{spec.parameter} = {x[i]:g}", (x[i], 50),
+        ax.annotate(f"{spec.parameter} = {x[i]:g}", (x[i], 50),
                     xytext=(-6 if right_half else 6, 0), textcoords="offset points", fontsize=8,
                     ha="right" if right_half else "left",
                     bbox={"boxstyle": "round", "fc": "white", "ec": "0.7"})
     b = spec.base
     ax.set_title(f"track {b.track}, {b.speed_cm_s:g} cm/s {b.profile}, {spec.trials} trials/step, "
                  f"{result.rate_hz / 1000:g} kHz", fontsize=9)
-    lines = ax.get_legend_handles_labels()
-    lines2 = ax2.get_legend_handles_labels()
-    ax.legend(lines[0] + lines2[0], lines[1] + lines2[1], loc="center left", fontsize=8)
+    ax.legend(loc="best", fontsize=8)
     ax.grid(alpha=0.3)
     fig.tight_layout()
     tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
