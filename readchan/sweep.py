@@ -76,6 +76,7 @@ __all__ = [
     "TrialOutcome",
     "linear_values",
     "plot_sweep",
+    "random_text",
     "reference_reads",
     "run_sweep",
     "run_trials",
@@ -239,17 +240,21 @@ class TrialOutcome:
     ref_false_accepts: int | None = None
 
 
+def random_text(track: int, n_chars: int, rng: np.random.Generator) -> str:
+    """Random valid text for ``track``, sentinels included: ``n_chars`` characters of the
+    track's format other than the start and end sentinels; invented, not card numbers."""
+    fmt = TRACKS[track].fmt
+    codes = [c for c in range(fmt.n_codes) if c not in (fmt.start_code, fmt.end_code)]
+    body = "".join(fmt.char_of(int(c)) for c in rng.choice(codes, n_chars))
+    return fmt.start_char + body + fmt.end_char
+
+
 def _content(scenario: Scenario, rng: np.random.Generator) -> str:
-    """Random valid text for the scenario's track: characters of the track's format except
-    the start and end sentinels; invented, not card numbers."""
+    """The scenario's fixed text, or random text (a full track unless ``n_chars``)."""
     if scenario.text is not None:
         return _full_text(scenario.text, scenario.track)
-    spec = TRACKS[scenario.track]
-    fmt = spec.fmt
-    codes = [c for c in range(fmt.n_codes) if c not in (fmt.start_code, fmt.end_code)]
-    n = scenario.n_chars if scenario.n_chars is not None else spec.max_chars - 3
-    body = "".join(fmt.char_of(int(c)) for c in rng.choice(codes, n))
-    return fmt.start_char + body + fmt.end_char
+    n = scenario.n_chars if scenario.n_chars is not None else TRACKS[scenario.track].max_chars - 3
+    return random_text(scenario.track, n, rng)
 
 
 def _full_text(text: str, track: int) -> str:
