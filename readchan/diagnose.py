@@ -1,0 +1,868 @@
+"""Front-end diagnostics: every read of a channel measured in physical units, and a verdict.
+
+Decoding says *what* a card holds; this module says *how well* the front end delivered it:
+amplitude, noise and hum, pulse width, swipe speed and its changes, timing margin, the
+anomalies the decoder met, and which of these quantities has the least headroom.
+
+Measurement signal
+------------------
+Detection runs on a signal low-passed to the pulse rate (:func:`readchan.decode.decode_channel`),
+which narrows the noise band and widens the pulses.  The quantities below are measured instead
+on the *wide-band* signal: the channel conditioned with the baseline high-pass only
+(``highpass_hz``, 20 Hz by default, zero-phase), with the mains hum fitted on the quiet stretches
+(:func:`readchan.condition.fit_hum`) subtracted.  Its noise is the noise at the capture's full
+bandwidth, which is how the synthesizer states its SNR (:class:`readchan.synth.Impairments`).
+Peak values are that signal's samples at the detected peak positions (the detection filters
+are zero-phase, so the positions carry over).
+
+Definitions (each is also in the docstring of the field that holds it)
+----------------------------------------------------------------------
+* median |peak| ``median_peak``: median over the read's transitions of the wide-band signal at
+  each transition, sign removed (capture units: full scale for audio, volts for tables).
+* asymmetry ``asymmetry_pct``: 100·(P − N)/(P + N), P and N the medians of the positive and the
+  negative peaks' magnitudes (the usual read-head asymmetry figure; common practice).
+* noise RMS ``noise_rms``: RMS of the wide-band signal over the samples farther than 10 ms from
+  every stretch of transitions (:func:`readchan.decode.quiet_mask`); SNR ``snr_db`` =
+  20·log10(median |peak| / noise RMS).
+* hum: fitted fundamental ``hum_hz`` (0.02 Hz grid), its nominal mains system ``mains_hz``
+  (50 or 60, the nearer), its peak amplitude ``hum_amplitude`` and ``hum_ratio`` = amplitude /
+  median |peak|.
+* DC offset ``dc_offset``: the median of the raw samples.  Baseline wander ``wander_pp``:
+  peak-to-peak of what the baseline high-pass removes (raw − DC − wide-band signal), i.e. the
+  content below ``highpass_hz``.
+* clipping ``clipped_fraction``: fraction of the read's samples that sit, in runs of three or
+  more, within 10⁻⁴ of the channel's span from its largest or smallest value (flat tops).
+* PW50 ``pw50_s``: median full width at half of each pulse's peak, crossings found by linear
+  interpolation, over the pulses whose two neighbouring intervals on each side are full cells
+  (the clocking zeros, where intersymbol interference is least); ``pw50_cell`` = PW50 over the
+  local bit period; ``pw50_m`` = PW50 times the local speed.
+* resolution: mean |peak| of pulses with half-cell intervals on both sides over the mean |peak|
+  of pulses with full-cell intervals on both sides.
+* speed ``speed_cm_s`` = 2.54 / (density_bpi · period_s) for each bit, from the timing loop's
+  bit period (:class:`readchan.timing.BitStream`); acceleration ``accel_m_s2``: the slope of a
+  straight line fitted to speed against time over a sliding window of bits;
+  ``mean_accel_m_s2``: the slope of one line through the whole read.
+  ``speed_change_per_bit`` = max |acceleration| · T / v: the largest fractional speed change
+  from one bit to the next.
+* normalised interval r = Δ/T (Δ an interval between transitions, T the local bit period),
+  histogram over 0..2 in steps of 0.025 cell; decision margin |r − 0.75| / 0.25 per bit, as in
+  :mod:`readchan.timing`; its minimum and 1st percentile and where they fall.
+* peak shift ``peak_shift_s``: how far intersymbol interference pushes a pulse that has a half
+  cell on one side and a full cell on the other away from its near neighbour, estimated from the
+  normalised intervals: half cells beside a full cell come out longer, full cells beside a half
+  cell shorter, each by one shift (see :func:`_peak_shift`).
+
+Verdict: every quantity with a limit in :data:`LIMITS` gets a headroom, the factor by which it
+clears its limit (≥ 1 passes); the read's verdict names the failing quantities, and always the
+one with the least headroom.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.interpolate import CubicSpline
+from scipy.ndimage import median_filter
+
+from readchan.capture import Capture
+from readchan.condition import ConditionSettings, HumFit, condition, fit_hum
+from readchan.decode import ChannelResult, DecodeSettings, Read, decode_channel, quiet_mask
+from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK
+from readchan.timing import BOUNDARY, FLAG_LONE_HALF, FLAG_LONG
+
+__all__ = [
+    "LIMITS", "Amplitude", "format_check", "verdict_text", "Anomaly", "ChannelReport", "Check", "FrontEnd", "Limit", "Noise", "PulseShape",
+    "ReadReport", "Timing", "inspect_capture", "inspect_channel",
+]
+
+GUARD_S = 0.01
+"""Samples this close to a stretch of transitions are not used for noise and hum (seconds)."""
+
+EDGE_S = 0.05
+"""The hum is fitted on quiet samples at least this far from the capture's ends (seconds)."""
+
+MIN_QUIET_S = 0.005
+"""Least quiet time for a noise measurement; below it the noise comes from 1 ms blocks."""
+
+HIST_EDGES = np.linspace(0.0, 2.0, 81)
+"""Bin edges of the normalised-interval histogram, in bit cells."""
+
+CLIP_TOL = 1e-4
+CLIP_RUN = 3
+
+
+@dataclass(frozen=True)
+class Limit:
+    """A verdict threshold.
+
+    Attributes
+    ----------
+    name : the checked quantity's key.
+    label : what a failure is called ("low SNR").
+    quantity : what the value is ("SNR"), for display.
+    unit : unit of the displayed value and limit (after ``scale``).
+    scale : display factor (100 shows a fraction in %).
+    limit : the threshold, in the value's own unit (before ``scale``).
+    sense : ``"min"`` (the value must be at least the limit) or ``"max"`` (at most).
+    source : where the threshold comes from.
+    """
+
+    name: str
+    label: str
+    quantity: str
+    unit: str
+    scale: float
+    limit: float
+    sense: str
+    source: str
+
+
+LIMITS = (
+    Limit("snr_db", "low SNR", "SNR", "dB", 1.0, 20.0, "min",
+          "common practice: at 20 dB a 4σ noise peak reaches 0.4 of a pulse, the detection threshold"),
+    Limit("margin_min", "low decision margin", "worst decision margin", "", 1.0, 0.3, "min",
+          "common practice: 0.3 leaves 0.075 cell between the worst interval and the 0.75 boundary"),
+    Limit("pw50_cell", "wide pulses", "PW50", "cell", 1.0, 0.5, "max",
+          "common practice: wider than half a cell, the two pulses of a 1 merge and shift"),
+    Limit("speed_min_cm_s", "slow swipe", "slowest speed", "cm/s", 1.0, 7.6, "min",
+          "common practice: readers are commonly specified for 7.6-127 cm/s; no ISO requirement"),
+    Limit("speed_max_cm_s", "fast swipe", "fastest speed", "cm/s", 1.0, 127.0, "max",
+          "common practice: readers are commonly specified for 7.6-127 cm/s; no ISO requirement"),
+    Limit("speed_change_per_bit", "jerky swipe", "speed change per bit", "%", 100.0, 0.0125, "max",
+          "derived: with loop gain 0.25 the timing loop lags a 1.25 %/bit speed change by 0.05 cell"),
+    Limit("asymmetry_abs_pct", "asymmetric peaks", "peak asymmetry", "%", 1.0, 20.0, "max", "common practice"),
+    Limit("clipped_fraction", "clipping", "clipped samples", "%", 100.0, 0.001, "max", "common practice"),
+    Limit("hum_ratio", "mains hum", "hum / median peak", "%", 100.0, 0.2, "max",
+          "derived: half of the 0.4 detection threshold (a baseline shifted further hides pulses)"),
+)
+"""The verdict thresholds (documented in the README's inspect section)."""
+
+
+@dataclass(frozen=True)
+class FrontEnd:
+    """Channel-wide front-end measurements (shared by the channel's reads).
+
+    Attributes
+    ----------
+    channel : channel index.
+    kind : ``"head"`` or ``"logic"``.
+    units : the capture's units (``"FS"`` for audio).
+    rate_hz : sample rate in Hz.
+    duration_s : channel length in seconds.
+    dc_offset : median of the raw samples (capture units).
+    wander_pp : peak-to-peak of the content below the baseline high-pass (capture units).
+    hum_hz : fitted hum fundamental in Hz, or None when no hum is significant.
+    mains_hz : 50.0 or 60.0, the mains system nearest ``hum_hz``; None with no hum.
+    hum_amplitude : hum fundamental's peak amplitude (capture units), or None.
+    noise_rms : wide-band noise RMS on the quiet samples (capture units); None for logic.
+    noise_from : ``"quiet"`` (samples away from all transitions) or ``"blocks"`` (too little
+        quiet time: the 10th percentile of 1 ms block RMS values, which reads low).
+    quiet_s : quiet time the noise and hum were measured on, in seconds.
+    n_transitions : transitions detected on the channel.
+    """
+
+    channel: int
+    kind: str
+    units: str
+    rate_hz: float
+    duration_s: float
+    dc_offset: float
+    wander_pp: float | None
+    hum_hz: float | None
+    mains_hz: float | None
+    hum_amplitude: float | None
+    noise_rms: float | None
+    noise_from: str
+    quiet_s: float
+    n_transitions: int
+
+
+@dataclass(frozen=True)
+class Amplitude:
+    """Pulse amplitudes of one read (capture units).
+
+    Attributes
+    ----------
+    t_s : time of each transition, seconds.
+    peak : |peak| of each transition on the wide-band signal.
+    smooth : running median of ``peak`` over 31 transitions (amplitude along the swipe).
+    median_peak, min_peak, max_peak : median, smallest and largest |peak|.
+    positive_median, negative_median : medians of the positive and negative peaks' magnitudes.
+    asymmetry_pct : 100·(P − N)/(P + N).
+    clipped_fraction : fraction of the read's samples in flat tops at the channel's extremes.
+    """
+
+    t_s: np.ndarray
+    peak: np.ndarray
+    smooth: np.ndarray
+    median_peak: float
+    min_peak: float
+    max_peak: float
+    positive_median: float
+    negative_median: float
+    asymmetry_pct: float
+    clipped_fraction: float
+
+
+@dataclass(frozen=True)
+class Noise:
+    """Noise of one read: ``noise_rms`` (capture units, channel-wide), ``snr_db`` =
+    20·log10(median |peak| / noise RMS), ``hum_ratio`` = hum amplitude / median |peak|."""
+
+    noise_rms: float
+    snr_db: float
+    hum_ratio: float | None
+
+
+@dataclass(frozen=True)
+class PulseShape:
+    """Pulse width of one read.
+
+    Attributes
+    ----------
+    pw50_s : median width at half amplitude of the full-cell-spaced pulses, seconds.
+    pw50_cell : PW50 over the local bit period (isolated-pulse estimate).
+    width_cell : half-amplitude width of the mean clocking-zero pulse as measured, in cells,
+        before the correction for its neighbours' tails.
+    pw50_m : PW50 times the local speed (median), metres; None without a density.
+    n_pulses : pulses measured.
+    resolution : mean |peak| of half-cell-spaced pulses over full-cell-spaced ones; None
+        when the read has no run of ones.
+    """
+
+    pw50_s: float
+    pw50_cell: float
+    width_cell: float
+    pw50_m: float | None
+    n_pulses: int
+    resolution: float | None
+
+
+@dataclass(frozen=True)
+class Timing:
+    """Timing of one read.
+
+    Attributes
+    ----------
+    density_bpi : the density speeds are computed from; None when the track is unknown.
+    bit_t_s : start time of each bit cell, seconds.
+    period_s : the timing loop's bit period at each bit, seconds.
+    speed_cm_s : 2.54 / (density · period) per bit, cm/s; None without a density.
+    speed_fit_cm_s : speed from the sliding straight-line fit, cm/s; None without a density.
+    accel_m_s2 : slope of the sliding fit, m/s²; None without a density.
+    mean_speed_cm_s, min_speed_cm_s, max_speed_cm_s : mean of ``speed_cm_s``; extremes of
+        ``speed_fit_cm_s``.
+    mean_accel_m_s2 : slope of one straight line through speed against time, m/s².
+    max_abs_accel_m_s2 : largest |accel_m_s2|.
+    speed_change_per_bit : max over bits of |accel| · T / v (dimensionless).
+    ratio_t_s, ratio : each interval's start time (s) and its normalised length r = Δ/T.
+    hist_edges_cell, hist_counts : histogram of r (values clipped into 0..2).
+    margin : decision margin per bit (0 on the boundary, 1 ideal).
+    margin_min, margin_min_bit, margin_min_t_s : the worst bit's margin, index and time.
+    margin_p1, margin_p1_bit, margin_p1_t_s : the 1st-percentile margin, and the bit at that
+        rank with its time.
+    peak_shift_s, peak_shift_cell : peak-shift estimate in seconds and in cells; None when
+        the read lacks the patterns it needs.
+    """
+
+    density_bpi: float | None
+    bit_t_s: np.ndarray
+    period_s: np.ndarray
+    speed_cm_s: np.ndarray | None
+    speed_fit_cm_s: np.ndarray | None
+    accel_m_s2: np.ndarray | None
+    mean_speed_cm_s: float | None
+    min_speed_cm_s: float | None
+    max_speed_cm_s: float | None
+    mean_accel_m_s2: float | None
+    max_abs_accel_m_s2: float | None
+    speed_change_per_bit: float | None
+    ratio_t_s: np.ndarray
+    ratio: np.ndarray
+    hist_edges_cell: np.ndarray
+    hist_counts: np.ndarray
+    margin: np.ndarray
+    margin_min: float
+    margin_min_bit: int
+    margin_min_t_s: float
+    margin_p1: float
+    margin_p1_bit: int
+    margin_p1_t_s: float
+    peak_shift_s: float | None
+    peak_shift_cell: float | None
+
+
+@dataclass(frozen=True)
+class Anomaly:
+    """Something the decoder met, tagged at its place in the capture.
+
+    Attributes
+    ----------
+    kind : ``"polarity"`` (two transitions of the same polarity: one missing), ``"extra"``
+        (a noise peak dropped), ``"weak"`` (a transition rescued below threshold),
+        ``"lone-half"`` (a half cell with no second half), ``"long"`` (an interval over 1.6
+        cells), ``"parity"``, ``"lrc"``, ``"no-end"`` (no end sentinel), ``"corrected"``.
+    t_s : time in seconds; sample : nearest sample index.
+    bit : bit index (time order) or None; char : character index (the LRC character is
+        ``len(text)``) or None.
+    """
+
+    kind: str
+    t_s: float
+    sample: int
+    bit: int | None
+    char: int | None
+
+
+@dataclass(frozen=True)
+class Check:
+    """One verdict check: ``value`` against ``limit.limit``; ``headroom`` ≥ 1 passes.
+
+    Headroom is value/limit for a lower limit and limit/value for an upper limit; for SNR it
+    is the amplitude ratio 10^((SNR − limit)/20).
+    """
+
+    limit: Limit
+    value: float
+    headroom: float
+
+    @property
+    def ok(self) -> bool:
+        return self.headroom >= 1.0
+
+
+@dataclass(frozen=True)
+class ReadReport:
+    """Diagnostics of one read; ``amplitude``, ``noise`` and ``pulse`` are None for logic captures."""
+
+    index: int
+    read: Read
+    amplitude: Amplitude | None
+    noise: Noise | None
+    pulse: PulseShape | None
+    timing: Timing
+    anomalies: tuple[Anomaly, ...]
+    checks: tuple[Check, ...]
+
+    @property
+    def least(self) -> Check | None:
+        """The check with the least headroom."""
+        return min(self.checks, key=lambda c: c.headroom) if self.checks else None
+
+    @property
+    def failed(self) -> tuple[Check, ...]:
+        return tuple(c for c in self.checks if not c.ok)
+
+    @property
+    def verdict(self) -> str:
+        """One line: the failing quantities with their limits, and the least headroom."""
+        return verdict_text(self.checks)
+
+    def bit_char(self) -> np.ndarray:
+        """Character index of each bit (time order), −1 outside the framed characters."""
+        return _bit_char(self.read)
+
+
+@dataclass(frozen=True)
+class ChannelReport:
+    """One channel's diagnostics: front end, reads, and the signals the plots draw.
+
+    Attributes
+    ----------
+    source : capture path.
+    front_end : channel-wide measurements.
+    reads : one report per read.
+    result : the decode result the reports are based on.
+    wideband : the measurement signal (see the module docstring), or the raw samples for logic.
+    """
+
+    source: str
+    front_end: FrontEnd
+    reads: tuple[ReadReport, ...]
+    result: ChannelResult
+    wideband: np.ndarray
+
+
+# ---------------------------------------------------------------------------------------------
+# public entry points
+
+
+def format_check(c: Check) -> str:
+    """``"SNR 32.1 dB (limit ≥ 20 dB, headroom ×4.0)"``."""
+    lim = c.limit
+    unit = f" {lim.unit}" if lim.unit and lim.unit != "%" else lim.unit
+    sign = "≥" if lim.sense == "min" else "≤"
+    head = "∞" if math.isinf(c.headroom) else f"{c.headroom:.2g}"
+    return (f"{lim.quantity} {_num(c.value * lim.scale)}{unit} "
+            f"(limit {sign} {_num(lim.limit * lim.scale)}{unit}, headroom ×{head})")
+
+
+def verdict_text(checks: tuple[Check, ...]) -> str:
+    """The verdict line of a read from its checks (see :class:`ReadReport`)."""
+    if not checks:
+        return "no checks apply"
+    least = min(checks, key=lambda c: c.headroom)
+    bad = [c for c in checks if not c.ok]
+    if not bad:
+        return f"ok; least headroom: {format_check(least)}"
+    names = ", ".join(c.limit.label for c in sorted(bad, key=lambda c: c.headroom))
+    return f"{names}; least headroom: {format_check(least)}"
+
+
+def _num(v: float) -> str:
+    if not math.isfinite(v):
+        return str(v)
+    a = abs(v)
+    if a == 0:
+        return "0"
+    if a >= 100:
+        return f"{v:.0f}"
+    if a >= 10:
+        return f"{v:.1f}"
+    if a >= 0.01:
+        return f"{v:.2f}"
+    return f"{v:.2g}"
+
+
+def inspect_channel(x: np.ndarray, rate_hz: float, result: ChannelResult, *, highpass_hz: float | None = 20.0,
+                    units: str = "FS", source: str = "") -> ChannelReport:
+    """Measure the front end and every read of one channel.
+
+    Parameters
+    ----------
+    x : the channel's raw samples (capture units).
+    rate_hz : sample rate in Hz.
+    result : the channel's decode result (:func:`readchan.decode.decode_channel` on ``x``).
+    highpass_hz : corner of the baseline high-pass of the measurement signal, Hz (None: DC only).
+    units : the capture's units, for reports.
+    source : the capture's path, for reports.
+
+    Returns
+    -------
+    ChannelReport
+    """
+    x = np.asarray(x, dtype=float)
+    rate_hz = float(rate_hz)
+    segs = list(result.segments) + [r.segment for r in result.reads]
+    quiet = quiet_mask(x.size, rate_hz, segs, guard_s=GUARD_S)
+    if result.kind == "logic":
+        fe = FrontEnd(result.channel, "logic", units, rate_hz, x.size / rate_hz, float(np.median(x)), None,
+                      None, None, None, None, "none", float(quiet.sum()) / rate_hz, len(result.transitions))
+        w = x
+    else:
+        fe, w = _front_end(x, rate_hz, result, quiet, highpass_hz, units)
+    clipped = _clipped(x) if result.kind == "head" else None
+    reads = tuple(_read_report(n, r, w, rate_hz, fe, clipped) for n, r in enumerate(result.reads))
+    return ChannelReport(source, fe, reads, result, w)
+
+
+def inspect_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),
+                    channels: list[int] | None = None) -> list[ChannelReport]:
+    """Decode the chosen ``channels`` (default all) of ``cap`` and inspect each."""
+    chans = range(cap.n_channels) if channels is None else channels
+    hp = settings.condition.highpass_hz
+    out = []
+    for c in chans:
+        x = cap.channel(c)
+        res = decode_channel(x, cap.rate_hz, settings, channel=c, n_channels=cap.n_channels, source=cap.source)
+        out.append(inspect_channel(x, cap.rate_hz, res, highpass_hz=hp, units=cap.units, source=cap.source))
+    return out
+
+
+# ---------------------------------------------------------------------------------------------
+# channel-wide measurements
+
+
+def _front_end(x, rate_hz, result, quiet, highpass_hz, units):
+    cs = ConditionSettings(highpass_hz=highpass_hz or None)
+    cond = condition(x, rate_hz, cs, channel=result.channel)
+    # The zero-phase high-pass rings at the capture's ends when hum is present (its padding
+    # does not continue a sinusoid), so the hum is fitted away from the ends, subtracted from
+    # the raw samples, and the high-pass run again on what is left.
+    edge = int(min(EDGE_S, 0.25 * x.size / rate_hz) * rate_hz)
+    inner = quiet.copy()
+    inner[:edge] = False
+    inner[x.size - edge:] = False
+    hum: HumFit | None = fit_hum(cond.signal, rate_hz, inner if inner.sum() >= 0.5 * quiet.sum() else quiet)
+    if hum is not None:
+        cond = condition(x - hum.waveform(x.size, rate_hz), rate_hz, cs, channel=result.channel)
+    w = cond.signal
+    wander = float(np.ptp((x - cond.dc_offset) - w)) if highpass_hz else 0.0
+    if hum is not None:
+        wander = float(np.ptp((x - hum.waveform(x.size, rate_hz) - cond.dc_offset) - w))
+    quiet_s = float(quiet.sum()) / rate_hz
+    if quiet_s >= MIN_QUIET_S:
+        q = w[quiet]
+        noise, how = float(np.sqrt(np.mean((q - q.mean()) ** 2))), "quiet"
+    else:
+        noise, how = _block_noise(w, rate_hz), "blocks"
+    mains = None if hum is None else (50.0 if abs(hum.freq_hz - 50.0) < abs(hum.freq_hz - 60.0) else 60.0)
+    fe = FrontEnd(result.channel, "head", units, rate_hz, x.size / rate_hz, cond.dc_offset, wander,
+                  None if hum is None else hum.freq_hz, mains, None if hum is None else hum.amplitude,
+                  noise, how, quiet_s, len(result.transitions))
+    return fe, np.ascontiguousarray(w)
+
+
+def _block_noise(w: np.ndarray, rate_hz: float) -> float:
+    """10th percentile of the RMS of 1 ms blocks (reads low for pure noise; a fallback)."""
+    block = max(16, int(rate_hz * 1e-3))
+    nb = w.size // block
+    if nb < 4:
+        return float(np.std(w))
+    r = np.sqrt(np.mean(w[: nb * block].reshape(nb, block) ** 2, axis=1))
+    return float(np.percentile(r, 10))
+
+
+def _clipped(x: np.ndarray) -> np.ndarray:
+    """Per sample: True inside a run of ≥ CLIP_RUN samples within CLIP_TOL·span of an extreme."""
+    hi, lo = float(x.max()), float(x.min())
+    tol = CLIP_TOL * (hi - lo)
+    if not tol > 0:
+        return np.zeros(x.size, bool)
+    out = np.zeros(x.size, bool)
+    for at in (np.abs(x - hi) <= tol, np.abs(x - lo) <= tol):
+        d = np.diff(np.concatenate(([0], at.view(np.int8), [0])))
+        starts, stops = np.flatnonzero(d == 1), np.flatnonzero(d == -1)
+        for a, b in zip(starts, stops):
+            if b - a >= CLIP_RUN:
+                out[a:b] = True
+    return out
+
+
+# ---------------------------------------------------------------------------------------------
+# per read
+
+
+def _read_report(n: int, r: Read, w: np.ndarray, rate_hz: float, fe: FrontEnd, clipped) -> ReadReport:
+    tr, bs = r.transitions, r.bits
+    timing = _timing(r)
+    amp = noise = pulse = None
+    if fe.kind == "head" and len(tr):
+        amp = _amplitude(tr, w, rate_hz, r, clipped)
+        snr = 20 * math.log10(amp.median_peak / fe.noise_rms) if fe.noise_rms and amp.median_peak > 0 else math.inf
+        hum_ratio = None if fe.hum_amplitude is None or not amp.median_peak > 0 else fe.hum_amplitude / amp.median_peak
+        noise = Noise(float(fe.noise_rms), float(snr), hum_ratio)
+        pulse = _pulse_shape(tr, bs, w, rate_hz, timing, r)
+    anomalies = _anomalies(r, rate_hz)
+    checks = _checks(amp, noise, pulse, timing)
+    return ReadReport(n, r, amp, noise, pulse, timing, anomalies, checks)
+
+
+def _amplitude(tr, w, rate_hz, r: Read, clipped) -> Amplitude:
+    idx = np.clip(tr.index, 0, w.size - 1)
+    sgn = np.sign(tr.amplitude)
+    peak = np.abs(w[idx])
+    smooth = median_filter(peak, size=min(31, peak.size), mode="nearest") if peak.size else peak
+    pos = np.abs(w[idx[sgn > 0]])
+    neg = np.abs(w[idx[sgn < 0]])
+    p = float(np.median(pos)) if pos.size else 0.0
+    q = float(np.median(neg)) if neg.size else 0.0
+    asym = 100.0 * (p - q) / (p + q) if p + q > 0 else 0.0
+    a = max(0, int(r.start_s * rate_hz))
+    b = min(w.size, int(r.end_s * rate_hz) + 1)
+    clip = float(np.mean(clipped[a:b])) if clipped is not None and b > a else 0.0
+    return Amplitude(tr.times_s.copy(), peak, smooth, float(np.median(peak)), float(peak.min()), float(peak.max()),
+                     p, q, float(asym), clip)
+
+
+def _full_cell_pulses(ratio: np.ndarray) -> np.ndarray:
+    """Transition indices whose two intervals on each side are full cells (r ≥ 0.75)."""
+    full = ratio >= BOUNDARY
+    n_tr = ratio.size + 1
+    j = np.arange(2, n_tr - 2)
+    ok = full[j - 2] & full[j - 1] & full[j] & full[j + 1]
+    return j[ok]
+
+
+def _half_cell_pulses(ratio: np.ndarray) -> np.ndarray:
+    """Transition indices with half-cell intervals on both sides."""
+    half = ratio < BOUNDARY
+    j = np.arange(1, ratio.size)
+    return j[half[j - 1] & half[j]]
+
+
+PULSE_GRID = np.linspace(-0.5, 0.5, 201)
+"""Where pulses are resampled for PW50, in bit cells from the peak."""
+
+
+def _half_width(x: np.ndarray, y: np.ndarray) -> float:
+    """Full width at half of the peak of ``y(x)`` (peak near the middle), by linear
+    interpolation between the grid points that straddle half the peak; NaN when unclear."""
+    k0 = int(np.argmax(y))
+    top = y[k0]
+    if not top > 0:
+        return math.nan
+    half = 0.5 * top
+    left = np.flatnonzero(y[:k0] < half)
+    right = np.flatnonzero(y[k0 + 1:] < half)
+    if left.size == 0 or right.size == 0:
+        return math.nan
+    i = left[-1]                                   # y[i] < half <= y[i+1]
+    xl = x[i] + (half - y[i]) / (y[i + 1] - y[i]) * (x[i + 1] - x[i])
+    k = k0 + 1 + right[0]                          # y[k] < half <= y[k-1]
+    xr = x[k - 1] + (y[k - 1] - half) / (y[k - 1] - y[k]) * (x[k] - x[k - 1])
+    return float(xr - xl)
+
+
+def _lorentzian_train_width(pw50_cell: np.ndarray) -> np.ndarray:
+    """Half-amplitude width (cells) of the middle pulse of an endless train of Lorentzian
+    pulses of alternating sign one cell apart (the clocking zeros), for isolated-pulse widths
+    ``pw50_cell``: the neighbours' tails narrow it (by 4 % at 0.3 cell, 12 % at 0.5 cell)."""
+    x = np.linspace(-0.5, 0.5, 2001)
+    k = np.arange(-40, 41)
+    out = np.empty(pw50_cell.size)
+    for i, p in enumerate(pw50_cell):
+        y = np.sum(((-1.0) ** k)[:, None] / (1.0 + (2.0 * (x[None, :] - k[:, None]) / p) ** 2), axis=0)
+        out[i] = _half_width(x, y)
+    return out
+
+
+_TRAIN_PW50 = np.linspace(0.02, 1.0, 50)
+_TRAIN_WIDTH = _lorentzian_train_width(_TRAIN_PW50)
+
+
+def isolated_pw50_cell(width_cell: float) -> float:
+    """Isolated-pulse PW50 (cells) whose Lorentzian clocking-zero train has half-amplitude width
+    ``width_cell`` (the inverse of :func:`_lorentzian_train_width`; Lorentzian pulse: the
+    standard approximation).  Widths beyond the table's reach (1 cell) are returned as they are."""
+    if not width_cell <= _TRAIN_WIDTH[-1]:
+        return float(width_cell)
+    return float(np.interp(width_cell, _TRAIN_WIDTH, _TRAIN_PW50))
+
+
+MIN_CLOCKING_PULSES = 64
+"""PW50 uses only the clocking zeros' pulses when there are at least this many (tracks 1 and 3);
+else every pulse with full cells on both sides (track 2 has about 35 clocking zeros)."""
+
+MAX_PW50_PULSES = 400
+"""At most this many pulses (evenly spread) go into the mean pulse."""
+
+
+def _mean_pulse(spline, t_pk: np.ndarray, per: np.ndarray, sign: np.ndarray, rate_hz: float,
+                iterations: int = 3) -> np.ndarray:
+    """Mean of the pulses resampled on ``PULSE_GRID`` (cells) around their peaks, each first
+    re-aligned to the mean by least squares (a Gauss–Newton step per iteration on the model
+    pulse_i ≈ a_i·m(x − δ_i), over the middle ±0.35 cell), so that the detector's timing jitter
+    does not widen the mean."""
+    shift = np.zeros(t_pk.size)
+    core = np.abs(PULSE_GRID) <= 0.35
+    dx = PULSE_GRID[1] - PULSE_GRID[0]
+    for it in range(iterations + 1):
+        tt = (t_pk + shift * per)[:, None] + PULSE_GRID[None, :] * per[:, None]
+        pulses = spline(tt * rate_hz) * sign[:, None]
+        m = pulses.mean(axis=0)
+        if it == iterations:
+            return m
+        dm = np.gradient(m, dx)
+        mc, dmc, pc = m[core], dm[core], pulses[:, core]
+        a = pc @ mc / (mc @ mc)
+        ok = a > 0.2
+        d = np.zeros(t_pk.size)
+        d[ok] = -(pc[ok] @ dmc) / (a[ok] * (dmc @ dmc))     # P ≈ a·m − a·δ·m'
+        shift = np.clip(shift + d, -0.15, 0.15)
+    return m
+
+
+def _pulse_shape(tr, bs, w, rate_hz, timing: Timing, r: Read) -> PulseShape | None:
+    """PW50 from the mean of the full-cell-spaced pulses (see :func:`_mean_pulse`), each
+    resampled from a cubic spline of the wide-band signal on a grid in cells around its peak
+    and sign-corrected: the mean keeps the shape and averages the noise down, so noise does not
+    narrow the width.  The width of that mean is then corrected for its neighbours' tails
+    (:func:`isolated_pw50_cell`)."""
+    ratio = bs.ratio
+    if ratio.size < 8:
+        return None
+    cand = _full_cell_pulses(ratio)
+    # prefer the clocking zeros (outside the framed characters) when there are enough
+    bi = r.frame.bit_index
+    lo, hi = int(bi.min()), int(bi.max())
+    bit_of = np.searchsorted(bs.first_transition, cand, side="right") - 1
+    outside = (bit_of < lo) | (bit_of > hi)
+    if outside.sum() >= MIN_CLOCKING_PULSES:
+        cand, bit_of = cand[outside], bit_of[outside]
+    if cand.size > MAX_PW50_PULSES:
+        pick = np.linspace(0, cand.size - 1, MAX_PW50_PULSES).round().astype(int)
+        cand, bit_of = cand[pick], bit_of[pick]
+    per = bs.period_s[np.clip(bit_of, 0, bs.period_s.size - 1)]
+    t_pk = tr.times_s[cand]
+    inside = ((t_pk - 0.7 * per) * rate_hz > 1) & ((t_pk + 0.7 * per) * rate_hz < w.size - 2)
+    if not inside.any():
+        return None
+    cand, per, t_pk = cand[inside], per[inside], t_pk[inside]
+    a = max(0, int((t_pk.min() - per.max()) * rate_hz) - 4)
+    b = min(w.size, int((t_pk.max() + per.max()) * rate_hz) + 5)
+    spline = CubicSpline(np.arange(a, b), w[a:b])
+    mean = _mean_pulse(spline, t_pk, per, np.sign(tr.amplitude[cand]), rate_hz)
+    measured = _half_width(PULSE_GRID, mean)
+    if not math.isfinite(measured):
+        return None
+    pw50_cell = isolated_pw50_cell(measured)
+    t_cell = float(np.median(per))
+    pw50_m = None if timing.density_bpi is None else pw50_cell * 0.0254 / timing.density_bpi
+    # resolution: half-cell-spaced over full-cell-spaced pulse amplitude
+    halfs = _half_cell_pulses(ratio)
+    fulls = _full_cell_pulses(ratio)
+    res = None
+    if halfs.size and fulls.size:
+        amp = np.abs(w[np.clip(tr.index, 0, w.size - 1)])
+        res = float(np.mean(amp[halfs]) / np.mean(amp[fulls]))
+    return PulseShape(pw50_cell * t_cell, pw50_cell, measured, pw50_m, int(cand.size), res)
+
+
+def _sliding_slope(t: np.ndarray, v: np.ndarray, half: int) -> tuple[np.ndarray, np.ndarray]:
+    """Least-squares line through (t, v) over the window of ±``half`` points around each point:
+    (fitted value, slope) per point; windows shrink at the ends.  Cumulative sums, no loop."""
+    n = t.size
+    t0 = t - t.mean()
+    c = [np.concatenate(([0.0], np.cumsum(a))) for a in (np.ones(n), t0, v, t0 * t0, t0 * v)]
+    i = np.arange(n)
+    a = np.clip(i - half, 0, n)
+    b = np.clip(i + half + 1, 0, n)
+    s0, st, sv, stt, stv = (cc[b] - cc[a] for cc in c)
+    den = s0 * stt - st * st
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slope = np.where(den > 0, (s0 * stv - st * sv) / den, 0.0)
+    fit = sv / s0 + slope * (t0 - st / s0)
+    return fit, slope
+
+
+def _timing(r: Read) -> Timing:
+    bs = r.bits
+    t = bs.start_s
+    per = bs.period_s
+    n = t.size
+    density = r.track.density_bpi if r.track is not None else None
+    speed = fit = accel = None
+    mean_v = vmin = vmax = mean_a = max_a = change = None
+    if density is not None and n >= 2:
+        speed = 2.54 / (density * per)
+        half = int(max(8, min(n // 16, 200)))
+        fit, slope = _sliding_slope(t, speed, half)
+        accel = slope / 100.0
+        mean_v = float(np.mean(speed))
+        vmin, vmax = float(fit.min()), float(fit.max())
+        mean_a = float(np.polyfit(t - t.mean(), speed, 1)[0] / 100.0)
+        max_a = float(np.max(np.abs(accel)))
+        change = float(np.max(np.abs(accel) * 100.0 * per / fit))
+    tr_t = r.transitions.times_s
+    ratio = bs.ratio
+    ratio_t = tr_t[:ratio.size]
+    counts, _ = np.histogram(np.clip(ratio, HIST_EDGES[0], HIST_EDGES[-1] - 1e-9), HIST_EDGES)
+    m = bs.margin
+    k_min = int(np.argmin(m)) if n else 0
+    order = np.argsort(m, kind="stable")
+    k_p1 = int(order[int(0.01 * (n - 1))]) if n else 0
+    shift = _peak_shift(ratio)
+    t_period = float(np.median(per)) if n else math.nan
+    return Timing(density, t.copy(), per.copy(), speed, fit, accel, mean_v, vmin, vmax, mean_a, max_a, change,
+                  ratio_t.copy(), ratio.copy(), HIST_EDGES.copy(), counts,
+                  m.copy(), float(m[k_min]) if n else math.nan, k_min, float(t[k_min]) if n else math.nan,
+                  float(np.percentile(m, 1)) if n else math.nan, k_p1, float(t[k_p1]) if n else math.nan,
+                  None if shift is None else shift * t_period, shift)
+
+
+def _peak_shift(ratio: np.ndarray, min_count: int = 4) -> float | None:
+    """Peak shift in cells from the normalised intervals.
+
+    A transition with a half cell on one side and a full cell on the other is pushed away from
+    its near neighbour by the shift δ (intersymbol interference of pulses of alternating
+    polarity).  So a half cell with a full cell on one side and a half cell on the other is
+    ½ + δ long, against ½ for a half cell between half cells; and a full cell with a half cell on
+    one side and a full cell on the other is 1 − δ long, against 1 between full cells.  δ is the
+    mean of the two differences that the read's patterns allow (None when neither does).
+    """
+    if ratio.size < 3:
+        return None
+    half = ratio < BOUNDARY
+    mid = np.arange(1, ratio.size - 1)
+    nb_half = half[mid - 1].astype(int) + half[mid + 1].astype(int)
+    r = ratio[mid]
+    est = []
+    h1 = half[mid] & (nb_half == 1)
+    h2 = half[mid] & (nb_half == 2)
+    if h1.sum() >= min_count and h2.sum() >= min_count:
+        est.append(float(np.median(r[h1]) - np.median(r[h2])))
+    f1 = ~half[mid] & (nb_half == 1)
+    f0 = ~half[mid] & (nb_half == 0)
+    if f1.sum() >= min_count and f0.sum() >= min_count:
+        est.append(float(np.median(r[f0]) - np.median(r[f1])))
+    return float(np.mean(est)) if est else None
+
+
+def _bit_char(r: Read) -> np.ndarray:
+    out = np.full(len(r.bits), -1, np.int64)
+    for c, row in enumerate(r.frame.bit_index):
+        row = row[(row >= 0) & (row < out.size)]
+        out[row] = c
+    return out
+
+
+def _anomalies(r: Read, rate_hz: float) -> tuple[Anomaly, ...]:
+    tr, bs, fr = r.transitions, r.bits, r.frame
+    bit_char = _bit_char(r)
+    out: list[Anomaly] = []
+
+    def tag(kind, t, bit):
+        ch = int(bit_char[bit]) if bit is not None and 0 <= bit < bit_char.size and bit_char[bit] >= 0 else None
+        out.append(Anomaly(kind, float(t), int(round(t * rate_hz)), bit, ch))
+
+    for flag, kind in ((FLAG_MISSING, "polarity"), (FLAG_EXTRA, "extra"), (FLAG_WEAK, "weak")):
+        for j in np.flatnonzero(tr.flags & flag):
+            if j == 0 and flag == FLAG_MISSING:
+                continue        # its same-polarity predecessor lies outside the read (noise)
+            bit = int(np.searchsorted(bs.first_transition, j, side="right") - 1) if len(bs) else None
+            tag(kind, tr.times_s[j], bit if bit is not None and bit >= 0 else None)
+    for flag, kind in ((FLAG_LONE_HALF, "lone-half"), (FLAG_LONG, "long")):
+        for k in np.flatnonzero(bs.flags & flag):
+            tag(kind, bs.start_s[k], int(k))
+
+    def char_at(c):
+        """The character's first bit in time order."""
+        return int(fr.bit_index[c].min())
+
+    for c in np.flatnonzero(~np.asarray(fr.parity_ok, bool)):
+        k = char_at(int(c))
+        out.append(Anomaly("parity", float(bs.start_s[k]), int(round(bs.start_s[k] * rate_hz)), k, int(c)))
+    for c in fr.corrected:
+        if c < fr.bit_index.shape[0]:
+            k = char_at(int(c))
+            out.append(Anomaly("corrected", float(bs.start_s[k]), int(round(bs.start_s[k] * rate_hz)), k, int(c)))
+    if fr.complete and not fr.lrc_ok and fr.bit_index.shape[0] > len(fr.text):
+        c = len(fr.text)
+        k = char_at(c)
+        out.append(Anomaly("lrc", float(bs.start_s[k]), int(round(bs.start_s[k] * rate_hz)), k, c))
+    if not fr.complete:
+        out.append(Anomaly("no-end", float(r.end_s), int(round(r.end_s * rate_hz)), None, None))
+    out.sort(key=lambda a: a.t_s)
+    return tuple(out)
+
+
+def _headroom(lim: Limit, v: float) -> float:
+    if lim.name == "snr_db":
+        return 10 ** ((v - lim.limit) / 20) if math.isfinite(v) else math.inf
+    if lim.sense == "min":
+        return v / lim.limit
+    return lim.limit / v if v > 0 else math.inf
+
+
+def _checks(amp, noise, pulse, timing: Timing) -> tuple[Check, ...]:
+    values = {
+        "snr_db": None if noise is None else noise.snr_db,
+        "margin_min": timing.margin_min,
+        "pw50_cell": None if pulse is None else pulse.pw50_cell,
+        "speed_min_cm_s": timing.min_speed_cm_s,
+        "speed_max_cm_s": timing.max_speed_cm_s,
+        "speed_change_per_bit": timing.speed_change_per_bit,
+        "asymmetry_abs_pct": None if amp is None else abs(amp.asymmetry_pct),
+        "clipped_fraction": None if amp is None else amp.clipped_fraction,
+        "hum_ratio": None if noise is None else noise.hum_ratio,
+    }
+    out = []
+    for lim in LIMITS:
+        v = values[lim.name]
+        if v is None or (isinstance(v, float) and math.isnan(v)):
+            continue
+        out.append(Check(lim, float(v), float(_headroom(lim, float(v)))))
+    return tuple(out)
