@@ -77,11 +77,23 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
     return Conditioned(signal=np.ascontiguousarray(y), rate_hz=float(rate_hz), dc_offset=dc, channel=channel)
 
 
-def lowpass(c: Conditioned, lowpass_hz: float) -> Conditioned:
-    """``c`` through the 4th-order zero-phase Butterworth low-pass at ``lowpass_hz`` (Hz)."""
-    _check_corner("lowpass", lowpass_hz, c.rate_hz / 2)
-    sos = sps.butter(4, lowpass_hz, btype="lowpass", fs=c.rate_hz, output="sos")
-    return Conditioned(np.ascontiguousarray(sps.sosfiltfilt(sos, c.signal)), c.rate_hz, c.dc_offset, c.channel)
+def refine(c: Conditioned, *, lowpass_hz: float | None = None, highpass_hz: float | None = None) -> Conditioned:
+    """``c`` through an optional extra zero-phase band limit: a 4th-order Butterworth low-pass at
+    ``lowpass_hz`` and/or a 2nd-order high-pass at ``highpass_hz`` (Hz), in one filter pass."""
+    nyq = c.rate_hz / 2
+    if lowpass_hz is not None:
+        _check_corner("lowpass", lowpass_hz, nyq)
+    if highpass_hz is not None:
+        _check_corner("highpass", highpass_hz, nyq)
+    if lowpass_hz is None and highpass_hz is None:
+        return c
+    sos = []
+    if lowpass_hz is not None:
+        sos.append(sps.butter(4, lowpass_hz, btype="lowpass", fs=c.rate_hz, output="sos"))
+    if highpass_hz is not None:
+        sos.append(sps.butter(2, highpass_hz, btype="highpass", fs=c.rate_hz, output="sos"))
+    y = sps.sosfiltfilt(np.concatenate(sos), c.signal)
+    return Conditioned(np.ascontiguousarray(y), c.rate_hz, c.dc_offset, c.channel)
 
 
 def _check_corner(name: str, f_hz: float, nyq: float) -> None:

@@ -11,8 +11,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from readchan.capture import Capture
-from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum, lowpass
-from readchan.detect import Transitions, auto_lowpass_hz, classify_kind, detect_head, detect_logic
+from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum, refine
+from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, classify_kind, clipped_fraction,
+                             detect_head, detect_logic)
 from readchan.errors import ParameterError
 from readchan.fields import CardFields, parse_fields
 from readchan.formats import TRACKS, CharFormat, TrackSpec
@@ -36,8 +37,9 @@ class DecodeSettings:
     notch : ``"auto"`` (notch mains hum when the spectrum shows it), ``"off"``, or a frequency.
     threshold : detection threshold as a fraction of the local pulse envelope.
     loop_gain : gain α of the bit-period tracking loop.
-    auto_lowpass : when no low-pass is set, add one matched to the pulse rate found by a
-        first detection pass (see :func:`readchan.detect.auto_lowpass_hz`).
+    auto_band : band-limit the signal to the pulse rate found by a first detection pass: a
+        low-pass (when none is set) and a high-pass above the baseline corner (see
+        :func:`readchan.detect.auto_lowpass_hz` and :func:`readchan.detect.auto_highpass_hz`).
     """
 
     fmt: CharFormat | None = None
@@ -47,7 +49,7 @@ class DecodeSettings:
     notch: str | float = "auto"
     threshold: float = 0.4
     loop_gain: float = 0.25
-    auto_lowpass: bool = True
+    auto_band: bool = True
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -118,6 +120,10 @@ MIN_CLOCKING_ZEROS = 6
 zeros (ISO/IEC 7811-2), while a sentinel pattern found in noise almost never follows six."""
 
 
+CLIPPED_FRACTION = 0.005
+"""Above this fraction of samples at the extremes a capture counts as clipped, and pulses are
+timed by the middle of their crests rather than by their (flattened) peaks."""
+
 MIN_REGULARITY = 0.75
 """Smallest :attr:`BitStream.regularity` of a stretch of transitions taken for a recording."""
 
@@ -178,13 +184,19 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
             hum = fit.freq_hz
             cond = Conditioned(cond.signal - fit.waveform(x.size, rate_hz), rate_hz, cond.dc_offset, channel)
             refined = True
-    if settings.auto_lowpass and cs.lowpass_hz is None:
-        f_lp = auto_lowpass_hz(tr, rate_hz)
-        if f_lp is not None:
-            cond = lowpass(cond, f_lp)
+    f_lp = f_hp = None
+    if settings.auto_band:
+        f_lp = auto_lowpass_hz(tr, rate_hz) if cs.lowpass_hz is None else None
+        f_hp = auto_highpass_hz(tr)
+        if f_hp is not None and (f_hp <= (cs.highpass_hz or 0.0) or f_hp >= 0.25 * rate_hz):
+            f_hp = None
+        if f_lp is not None or f_hp is not None:
+            cond = refine(cond, lowpass_hz=f_lp, highpass_hz=f_hp)
             refined = True
-    if refined:
-        tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
+    clipped = clipped_fraction(x) > CLIPPED_FRACTION
+    if refined or clipped:
+        tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold,
+                         timing="midpoint" if clipped else "peak")
     return cond, tr, hum
 
 

@@ -100,7 +100,7 @@ def noise_rms(x: np.ndarray, rate_hz: float) -> float:
 
 
 def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
-                floor_sigma: float = 4.5, window: int = 15) -> Transitions:
+                floor_sigma: float = 4.5, window: int = 15, timing: str = "peak") -> Transitions:
     """Detect pulse peaks in a conditioned head signal ``x``.
 
     Parameters
@@ -110,6 +110,8 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     threshold : fraction of the local envelope a pulse must exceed.
     floor_sigma : candidate floor in units of the noise RMS.
     window : number of neighbouring candidates the local envelope is taken over.
+    timing : ``"peak"`` (parabola through the three samples at the peak) or ``"midpoint"``
+        (:func:`level_midpoint_times`, for clipped captures).
 
     Notes
     -----
@@ -136,7 +138,7 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     env = percentile_filter(amp, 75, size=min(window, idx.size), mode="nearest")
     strong = amp >= threshold * env
     idx, env, flags = _alternate(x, idx, sgn, amp, env, strong, threshold)
-    times = _parabolic_times(x, idx) / rate_hz
+    times = (level_midpoint_times(x, idx) if timing == "midpoint" else _parabolic_times(x, idx)) / rate_hz
     return Transitions(times, idx, x[idx], env, flags, float(rate_hz), "head", sigma)
 
 
@@ -215,6 +217,59 @@ def auto_lowpass_hz(tr: Transitions, rate_hz: float, *, factor: float = 1.0) -> 
         return None
     f = factor / float(np.percentile(d, 10))
     return f if f < 0.4 * rate_hz else None
+
+
+def auto_highpass_hz(tr: Transitions, *, factor: float = 0.15) -> float | None:
+    """High-pass corner (Hz) matched to the pulse rate: ``factor`` / the 90th-percentile interval.
+
+    F2F has no energy below half the bit rate at the slowest point of a swipe (all zeros:
+    pulses one cell apart), so a corner well below that leaves the pulses and removes what
+    lies under them: mains hum, baseline wander, AC-coupling droop (common practice).
+    """
+    d = np.diff(tr.times_s)
+    d = d[(d > 0) & (d < 0.02)]
+    if d.size < 16:
+        return None
+    return factor / float(np.percentile(d, 90))
+
+
+def clipped_fraction(x: np.ndarray) -> float:
+    """Fraction of samples sitting at the signal's extreme values (within 0.1 % of the largest
+    |x| from the median): a clipped front end flattens the pulse crests there."""
+    x = x[:: max(1, x.size // 500_000)]
+    y = np.abs(x - np.median(x))
+    top = y.max() if y.size else 0.0
+    return float(np.mean(y >= 0.999 * top)) if top > 0 else 0.0
+
+
+def level_midpoint_times(x: np.ndarray, idx: np.ndarray, *, level: float = 0.75) -> np.ndarray:
+    """Pulse times (in samples) as the midpoint of the crossings of ``level`` × each pulse's
+    peak on either side of it, linearly interpolated.
+
+    For a symmetric pulse this is the peak; for a clipped pulse, whose crest is flat, it is
+    the middle of the plateau, where the peak itself is undefined.  A loop over pulses.
+    """
+    out = np.empty(idx.size)
+    n = x.size
+    bounds = np.concatenate(([0], (idx[1:] + idx[:-1]) // 2, [n - 1]))
+    for k in range(idx.size):
+        i = int(idx[k])
+        s = 1.0 if x[i] >= 0 else -1.0
+        thr = level * s * x[i]
+        lo, hi = int(bounds[k]), int(bounds[k + 1])
+        left = s * x[lo:i + 1] < thr
+        right = s * x[i:hi + 1] < thr
+        if not left.any() or not right.any():
+            out[k] = i
+            continue
+        a = lo + int(np.flatnonzero(left)[-1])            # last sample below, left of the peak
+        b = i + int(np.flatnonzero(right)[0])             # first sample below, right of it
+        ya, ya1 = s * x[a], s * x[a + 1]
+        yb0, yb = s * x[b - 1], s * x[b]
+        ta = a + (thr - ya) / (ya1 - ya) if ya1 != ya else a
+        tb = b - 1 + (yb0 - thr) / (yb0 - yb) if yb0 != yb else b
+        out[k] = 0.5 * (ta + tb)
+    return out
 
 
 def _parabolic_times(x: np.ndarray, i: np.ndarray) -> np.ndarray:

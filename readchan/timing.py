@@ -30,6 +30,7 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
+from scipy.ndimage import median_filter
 
 BOUNDARY = 0.75
 """Decision boundary between a half cell and a full cell, in bit periods."""
@@ -106,7 +107,8 @@ def initial_period(intervals_s: np.ndarray, n: int = 16) -> float:
 
 
 def recover_bits(times_s: np.ndarray, *, loop_gain: float = 0.25,
-                 period_at: Callable[[np.ndarray], np.ndarray] | None = None) -> BitStream:
+                 period_at: Callable[[np.ndarray], np.ndarray] | None = None,
+                 method: str = "sequence") -> BitStream:
     """Recover F2F bits from transition times ``times_s`` (seconds, increasing).
 
     Parameters
@@ -115,7 +117,80 @@ def recover_bits(times_s: np.ndarray, *, loop_gain: float = 0.25,
     loop_gain : α of the first-order period-tracking loop (0 < α ≤ 1).
     period_at : optional reference: a function giving the true bit period (s) at given
         times; when given, the loop is bypassed.
+    method : ``"sequence"`` (dynamic-programming parse, the default) or ``"loop"``.
     """
+    loop = _recover_loop(times_s, loop_gain=loop_gain, period_at=period_at)
+    if method == "loop" or len(loop) < 4:
+        return loop
+    t = np.asarray(times_s, dtype=float)
+    if period_at is not None:
+        return _parse(t, period_at(t))
+    first = _parse(t, _period_trace(t, loop))
+    return _parse(t, _period_trace(t, first))
+
+
+def _period_trace(t: np.ndarray, bs: BitStream) -> np.ndarray:
+    """Bit period (s) at every transition: the cells of ``bs`` median-filtered over 9 bits."""
+    ends = np.concatenate((bs.start_s[1:], [t[-1]]))
+    cell = ends - bs.start_s
+    ok = (bs.flags == 0) & (cell > 0)
+    if ok.sum() < 4:
+        return np.interp(t, bs.start_s, bs.period_s)
+    c = median_filter(cell[ok], size=min(9, int(ok.sum())), mode="nearest")
+    mid = 0.5 * (bs.start_s[ok] + ends[ok])
+    return np.interp(t, mid, c)
+
+
+def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
+    """Viterbi parse of the intervals of ``t`` into F2F bits against the period trace."""
+    d = np.diff(t)
+    r = (d / period[:-1]).tolist()
+    n = len(r)
+    inf = float("inf")
+    cost = [0.0] + [inf] * n
+    move = [0] * (n + 1)          # 1: a 0 bit (one interval); 2: a 1 bit (two); 3: a lone half
+    for i in range(1, n + 1):
+        ri = r[i - 1]
+        best = cost[i - 1] + (ri - 1.0) ** 2
+        mv = 1
+        lone = cost[i - 1] + 0.5 + (ri - 0.5) ** 2
+        if lone < best:
+            best, mv = lone, 3
+        if i >= 2:
+            a, b = r[i - 2], ri
+            c1 = cost[i - 2] + (a + b - 1.0) ** 2 + 0.5 * ((a - 0.5) ** 2 + (b - 0.5) ** 2)
+            if c1 < best:
+                best, mv = c1, 2
+        cost[i], move[i] = best, mv
+    moves = []
+    i = n
+    while i > 0:
+        mv = move[i]
+        moves.append(mv)
+        i -= 2 if mv == 2 else 1
+    moves.reverse()
+    bits, start, per, margin, flags, first = [], [], [], [], [], []
+    i = 0
+    for mv in moves:
+        start.append(t[i]); per.append(period[i]); first.append(i)
+        if mv == 1:
+            bits.append(0); flags.append(int(FLAG_LONG) if r[i] > 1.6 else 0)
+            margin.append(abs(r[i] - BOUNDARY) * 4.0)
+            i += 1
+        elif mv == 2:
+            bits.append(1); flags.append(0)
+            margin.append(min(abs(r[i] - BOUNDARY), abs(r[i + 1] - BOUNDARY)) * 4.0)
+            i += 2
+        else:
+            bits.append(1); flags.append(int(FLAG_LONE_HALF)); margin.append(0.0)
+            i += 1
+    return BitStream(np.asarray(bits, np.uint8), np.asarray(start), np.asarray(per), np.asarray(margin),
+                     np.asarray(flags, np.uint8), np.asarray(first, np.int64), np.asarray(r))
+
+
+def _recover_loop(times_s: np.ndarray, *, loop_gain: float = 0.25,
+                  period_at: Callable[[np.ndarray], np.ndarray] | None = None) -> BitStream:
+    """The first-order tracking loop with threshold decisions (see the module docstring)."""
     t = np.asarray(times_s, dtype=float)
     d_arr = np.diff(t)
     nb = d_arr.size
