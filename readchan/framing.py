@@ -491,6 +491,11 @@ def _single_error_fix(c: int, syndrome: int, data: np.ndarray, lrc_read: int,
     """
     n_data = data.size
     old = int(data[c]) if c < n_data else int(lrc_read)
+    if c == n_data and syndrome != 0:
+        # A damaged LRC character whose data disagrees with the data characters: a burst in a
+        # data character that kept its parity explains it as well as one bad LRC bit, and
+        # "correcting" the LRC would then vouch for wrong data. Leave the read invalid.
+        return None
     if syndrome == 0:
         new, bit = old, fmt.data_bits
     elif syndrome & (syndrome - 1) == 0:

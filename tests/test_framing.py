@@ -230,7 +230,7 @@ def test_a_single_flipped_data_bit_anywhere_is_corrected_and_reported(case, data
     fmt = spec.fmt
     clean = encode_text(text, fmt, max_chars=spec.max_chars)
     n_chars = clean.size // fmt.bits_per_char
-    char = data.draw(st.integers(0, n_chars - 1), label="character")
+    char = data.draw(st.integers(0, n_chars - 2), label="character")   # the LRC: see below
     bit = data.draw(st.integers(0, fmt.data_bits - 1), label="data bit")
     where = lead + char * fmt.bits_per_char + bit
     bits = padded(clean, lead, trail)
@@ -252,6 +252,19 @@ def test_a_single_flipped_data_bit_anywhere_is_corrected_and_reported(case, data
     assert not found.parity_ok[char]
 
 
+def test_a_flipped_lrc_data_bit_is_not_corrected_and_leaves_the_read_invalid():
+    # A bad LRC data bit is indistinguishable from a parity-preserving burst in a data
+    # character plus a bad LRC bit; "correcting" it would vouch for data the LRC no longer
+    # protects, so the read stays invalid (our policy; the data characters are still shown).
+    clean = encode_text(";1234=2912?", ISO_BCD)
+    bits = padded(clean, 22, 15)
+    bits[22 + clean.size - 5] ^= 1          # first data bit of the LRC character
+    found = frame(bits, ISO_BCD)
+    assert found.text == ";1234=2912?"
+    assert not found.valid and found.corrected == ()
+    assert not found.lrc_ok
+
+
 def test_a_flipped_parity_bit_is_corrected_leaving_the_data():
     clean = encode_text(";1234=2912?", ISO_BCD)
     bits = padded(clean, 22, 15)
@@ -265,10 +278,10 @@ def test_a_flipped_parity_bit_is_corrected_leaving_the_data():
     assert found.codes[3] == 3
 
 
-def test_a_flipped_bit_in_the_lrc_character_is_reported_at_index_len_text():
+def test_a_flipped_parity_bit_of_the_lrc_character_is_reported_at_index_len_text():
     text = ";1234=2912?"
     bits = padded(encode_text(text, ISO_BCD), 22, 15)
-    where = 22 + len(text) * 5 + 1
+    where = 22 + len(text) * 5 + 4          # the LRC's own parity bit
     bits[where] ^= 1
     found = frame(bits, ISO_BCD)
     assert found.valid and found.text == text
