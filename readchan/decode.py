@@ -16,8 +16,9 @@ from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, cla
                              detect_head, detect_logic)
 from readchan.errors import ParameterError
 from readchan.fields import CardFields, parse_fields
-from readchan.formats import TRACKS, CharFormat, TrackSpec
+from readchan.formats import KNOWN_FORMATS, TRACKS, CharFormat, TrackSpec
 from readchan.framing import Frame, frame, frame_auto
+from readchan.recover import Recovery, recover
 from readchan.segment import Segment, segment
 from readchan.timing import BitStream, recover_bits
 
@@ -40,6 +41,8 @@ class DecodeSettings:
     auto_band : band-limit the signal to the pulse rate found by a first detection pass: a
         low-pass (when none is set) and a high-pass above the baseline corner (see
         :func:`readchan.detect.auto_lowpass_hz` and :func:`readchan.detect.auto_highpass_hz`).
+    recover : on a failed read, search the least confident bit decisions for the unique
+        reading that passes every check (:mod:`readchan.recover`).
     """
 
     fmt: CharFormat | None = None
@@ -50,6 +53,7 @@ class DecodeSettings:
     threshold: float = 0.4
     loop_gain: float = 0.25
     auto_band: bool = True
+    recover: bool = True
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -90,6 +94,7 @@ class Read:
     fields : parsed ISO/IEC 7813 fields, or None.
     track : the assumed track (density) used for speeds.
     mean_speed_cm_s : mean swipe speed from the bit period and the track density.
+    recovery : the parity-guided recovery search, when the read first failed its checks.
     """
 
     source: str
@@ -101,6 +106,7 @@ class Read:
     fields: CardFields | None
     track: TrackSpec | None
     mean_speed_cm_s: float | None
+    recovery: Recovery | None = None
 
     @property
     def valid(self) -> bool:
@@ -227,11 +233,17 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
         fr = frame(bs.bits, settings.fmt) if settings.fmt is not None else frame_auto(bs.bits)
         if fr is None or not _clocked(bs.bits, fr, MIN_CLOCKING_ZEROS):
             continue
+        recovery = None
+        if not fr.valid and settings.recover:
+            fmt = settings.fmt or next(f for f in KNOWN_FORMATS if f.name == fr.format)
+            recovery = recover(bs.bits, bs.margin, fr, fmt)
+            if recovery.frame is not None:
+                fr = recovery.frame
         track = guess_track(fr.format, len(fr.text), channel, n_channels, settings.track)
         speed = mean_speed_cm_s(bs, track.density_bpi) if track else None
         # track 3 follows ISO 4909, whose fields readchan does not interpret
         fields = parse_fields(fr.text, fr.format) if not (track and track.number == 3) else None
-        reads.append(Read(source, channel, seg, sub, bs, fr, fields, track, speed))
+        reads.append(Read(source, channel, seg, sub, bs, fr, fields, track, speed, recovery))
     return ChannelResult(channel, kind, cond, tr, tuple(segs), tuple(reads), hum)
 
 

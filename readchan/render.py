@@ -38,6 +38,12 @@ def read_dict(r: Read, *, unmask: bool = False) -> dict:
         "end_s": round(float(r.end_s), 6),
         "mean_speed_cm_s": None if r.mean_speed_cm_s is None else round(r.mean_speed_cm_s, 2),
         "fields": None if r.fields is None else r.fields.to_dict(unmask=unmask),
+        "recovery": None if r.recovery is None else {
+            "candidates": r.recovery.candidates,
+            "passing": r.recovery.passing,
+            "accepted": r.recovery.frame is not None,
+            "searched_bits": list(r.recovery.searched),
+        },
     }
 
 
@@ -66,7 +72,8 @@ def decode_table(reads: list[Read], *, unmask: bool = False, title: str | None =
         bad = [i for i, ok in enumerate(f.parity_ok) if not ok]
         parity = _verdict(not bad, "ok", f"{len(bad)} bad")
         if f.corrected:
-            parity = Text(f"corrected {','.join(map(str, f.corrected))}", style="yellow")
+            how = "recovered" if r.recovery is not None and r.recovery.frame is not None else "corrected"
+            parity = Text(f"{how} {','.join(map(str, f.corrected))}", style="yellow")
         lrc = _verdict(f.lrc_ok) if f.complete else Text("no end", style="bold red")
         speed = "" if r.mean_speed_cm_s is None else f"{r.mean_speed_cm_s:.1f}"
         t.add_row(str(n), str(r.channel), str(r.track.number) if r.track else "?", f.format, f.direction,
