@@ -18,7 +18,7 @@ from readchan.errors import ParameterError
 from readchan.fields import CardFields, parse_fields
 from readchan.formats import KNOWN_FORMATS, TRACKS, CharFormat, TrackSpec
 from readchan.framing import Frame, frame, frame_auto
-from readchan.recover import Recovery, recover
+from readchan.recover import Recovery, confirm_correction, recover
 from readchan.segment import Segment, segment
 from readchan.timing import BitStream, recover_bits
 
@@ -234,8 +234,10 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
         if fr is None or not _clocked(bs.bits, fr, MIN_CLOCKING_ZEROS):
             continue
         recovery = None
+        fmt = settings.fmt or next(f for f in KNOWN_FORMATS if f.name == fr.format)
+        if fr.corrected:
+            fr = confirm_correction(fr, bs.bits, bs.margin, fmt)
         if not fr.valid and settings.recover:
-            fmt = settings.fmt or next(f for f in KNOWN_FORMATS if f.name == fr.format)
             recovery = recover(bs.bits, bs.margin, fr, fmt)
             if recovery.frame is not None:
                 fr = recovery.frame

@@ -458,7 +458,9 @@ def _build(seq: np.ndarray, start: int, codes: np.ndarray, par_ok: np.ndarray,
     complete = bool(framed and data.size >= 2 and data[-1] == fmt.end_code)
     starts = bool(data[0] == fmt.start_code)
     lrc_ok = True if not fmt.lrc else (syndrome == 0 if syndrome is not None else False)
-    valid = bool(complete and starts and parity_good and lrc_ok)
+    # Valid also needs clocking zeros after the LRC: data going on past it means the end
+    # sentinel was a damaged data character and the "LRC" after it agreed by chance.
+    valid = bool(complete and starts and parity_good and lrc_ok and zeros_after)
     text = "".join(chr(int(c) + fmt.offset) for c in data)
     found = Frame(
         format=fmt.name,
