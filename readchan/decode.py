@@ -7,6 +7,7 @@ produced, so that reports and diagnostics can point back into the capture.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Callable
 
 import numpy as np
 
@@ -217,9 +218,21 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
     else:
         cond, tr, hum = _detect_head_channel(x, rate_hz, settings, channel)
     segs = segment(tr)
+    reads = reads_from(tr, segs, settings, channel=channel, n_channels=n_channels, source=source)
+    return ChannelResult(channel, kind, cond, tr, tuple(segs), reads, hum)
+
+
+def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], settings: DecodeSettings, *,
+               channel: int = 0, n_channels: int = 1, source: str = "",
+               period_at: Callable[[np.ndarray], np.ndarray] | None = None) -> tuple[Read, ...]:
+    """Timing recovery, framing, checks, recovery and fields for each segment of ``tr``.
+
+    ``period_at`` (a function of time giving the bit period in seconds) replaces the timing
+    loop's estimate: the reference decoder of the accuracy benchmark.
+    """
     reads = []
     for seg in segs:
-        bs = recover_bits(tr.times_s[seg.start:seg.stop], loop_gain=settings.loop_gain)
+        bs = recover_bits(tr.times_s[seg.start:seg.stop], loop_gain=settings.loop_gain, period_at=period_at)
         span = bs.regular_span()
         if span is None:
             continue
@@ -227,7 +240,7 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
         a, b = seg.start + span[0], seg.start + span[1]
         seg = Segment(a, b, float(tr.times_s[a]), float(tr.times_s[b - 1]))
         sub = tr.subset(a, b)
-        bs = recover_bits(sub.times_s, loop_gain=settings.loop_gain)
+        bs = recover_bits(sub.times_s, loop_gain=settings.loop_gain, period_at=period_at)
         if bs.regularity < MIN_REGULARITY:
             continue
         fr = frame(bs.bits, settings.fmt) if settings.fmt is not None else frame_auto(bs.bits)
@@ -246,7 +259,7 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
         # track 3 follows ISO 4909, whose fields readchan does not interpret
         fields = parse_fields(fr.text, fr.format) if not (track and track.number == 3) else None
         reads.append(Read(source, channel, seg, sub, bs, fr, fields, track, speed, recovery))
-    return ChannelResult(channel, kind, cond, tr, tuple(segs), tuple(reads), hum)
+    return tuple(reads)
 
 
 def decode_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),

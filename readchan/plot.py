@@ -106,7 +106,6 @@ def _span(ch: ChannelReport, a_s: float, b_s: float) -> tuple[int, int]:
 
 def _plot_read(sf, ch: ChannelReport, r: ReadReport, unmask: bool) -> int:
     rd, tm = r.read, r.timing
-    fe = ch.front_end
     gs = sf.add_gridspec(4, 2, height_ratios=[1.0, 1.25, 1.0, 1.0])
     ax_over = sf.add_subplot(gs[0, :])
     ax_z1 = sf.add_subplot(gs[1, 0])

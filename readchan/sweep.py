@@ -56,15 +56,14 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from readchan.decode import MIN_REGULARITY, DecodeSettings, decode_channel
+from readchan.decode import DecodeSettings, decode_channel, reads_from
 from readchan.errors import ParameterError
 from readchan.formats import TRACKS
-from readchan.framing import Frame, frame, frame_auto
+from readchan.framing import Frame
 from readchan.synth import Impairments, SynthResult, SynthSpec, synthesize
 from readchan.synth.card import track_content
 from readchan.synth.head import KarlqvistPulse, LorentzianPulse
 from readchan.synth.speed import PROFILES, SpeedProfile
-from readchan.timing import recover_bits
 
 __all__ = [
     "PARAMETERS",
@@ -104,9 +103,6 @@ AUTO_RATES_HZ = (48_000.0, 96_000.0, 192_000.0, 384_000.0, 768_000.0, 1_536_000.
 """Sample rates an automatic choice picks from (the lowest that is fast enough)."""
 
 MAX_TRIALS = 100_000
-
-CLOCKING_ZEROS_BEFORE_START = 6
-"""Zeros a reference read needs before its start sentinel (as the decoder asks)."""
 
 DEMO_TEXTS = {
     1: "%B4000001234567899^TESSERA/IVO Q^3107101000000000000?",
@@ -306,38 +302,13 @@ def true_period_at(cell_times_s: Sequence[np.ndarray]) -> Callable[[np.ndarray],
     return lambda t: np.interp(np.asarray(t, float), at, period)
 
 
-def _clocked(bits: np.ndarray, fr: Frame, n: int) -> bool:
-    """True when the ``n`` bits before the start sentinel, in reading order, are all zero."""
-    i0 = int(fr.bit_index[0, 0])
-    before = bits[max(i0 - n, 0):i0] if fr.direction == "forward" else bits[i0 + 1:i0 + 1 + n]
-    return before.size == n and not before.any()
-
-
 def reference_reads(channel_result, period_at: Callable[[np.ndarray], np.ndarray],
                     settings: DecodeSettings) -> list[Frame]:
     """Frames from a decoded channel's own transitions and segments, with every bit decided
-    against the true period ``period_at`` instead of the tracking loop's estimate.
-
-    The steps after timing are the decoder's: trim each segment to its F2F-regular span, drop
-    stretches below the decoder's regularity floor, frame in ``settings.fmt`` (or every ISO
-    format), and keep frames with clocking zeros before the start sentinel.
-    """
-    tr = channel_result.transitions
-    frames = []
-    for seg in channel_result.segments:
-        bs = recover_bits(tr.times_s[seg.start:seg.stop], period_at=period_at)
-        span = bs.regular_span()
-        if span is None:
-            continue
-        a, b = seg.start + span[0], seg.start + span[1]
-        bs = recover_bits(tr.times_s[a:b], period_at=period_at)
-        if bs.regularity < MIN_REGULARITY:
-            continue
-        fr = frame(bs.bits, settings.fmt) if settings.fmt is not None else frame_auto(bs.bits)
-        if fr is None or not _clocked(bs.bits, fr, CLOCKING_ZEROS_BEFORE_START):
-            continue
-        frames.append(fr)
-    return frames
+    against the true period ``period_at`` instead of the timing loop's estimate; every other
+    step is the decoder's own (:func:`readchan.decode.reads_from`)."""
+    reads = reads_from(channel_result.transitions, channel_result.segments, settings, period_at=period_at)
+    return [r.frame for r in reads]
 
 
 def _seed_state(seed: int, index: int, trial: int) -> np.random.SeedSequence:

@@ -14,7 +14,6 @@ import tempfile
 import time
 from pathlib import Path
 
-import numpy as np
 import soundfile as sf
 
 from readchan.capture import load_capture, write_capture

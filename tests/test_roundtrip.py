@@ -7,7 +7,6 @@ direction, speed varying by up to ±30 % along the swipe, jitter up to ±5 % of 
 
 from __future__ import annotations
 
-import numpy as np
 from hypothesis import given
 from hypothesis import strategies as st
 

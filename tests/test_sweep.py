@@ -11,7 +11,6 @@ import pytest
 from readchan import cli
 from readchan.errors import EXIT_BAD_INPUT, ParameterError
 from readchan.formats import TRACKS
-from readchan.synth import Impairments
 from readchan.sweep import (Scenario, StepResult, SweepResult, SweepSpec, edit_distance, run_sweep, run_trial,
                             synthesize_trial, true_period_at)
 from readchan.sweep import _score
