@@ -77,6 +77,33 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
     return Conditioned(signal=np.ascontiguousarray(y), rate_hz=float(rate_hz), dc_offset=dc, channel=channel)
 
 
+def signal_band_hz(x: np.ndarray, rate_hz: float, *, ratio: float = 4.0) -> float | None:
+    """Upper edge (Hz) of the band where the signal stands above white noise, or None.
+
+    Welch periodogram (1024-point segments, at most ~1 M samples from the middle of the
+    capture); the noise floor is the median power over the top quarter of the band; the signal
+    band ends at the first frequency from which the power stays below ``ratio`` × the floor.
+    None when the signal fills more than half the band (nothing to gain from a low-pass).
+    """
+    n = x.size
+    if n < 4096:
+        return None
+    if n > 1 << 20:
+        mid = n // 2
+        x = x[mid - (1 << 19): mid + (1 << 19)]
+    f, p = sps.welch(x, fs=rate_hz, nperseg=1024)
+    nyq = rate_hz / 2
+    floor = np.median(p[f > 0.75 * nyq])
+    if not floor > 0:
+        return None
+    above = np.flatnonzero(p > ratio * floor)
+    above = above[f[above] < 0.75 * nyq]
+    if above.size == 0:
+        return None
+    edge = float(f[above[-1]])
+    return edge if edge < 0.5 * nyq else None
+
+
 def refine(c: Conditioned, *, lowpass_hz: float | None = None, highpass_hz: float | None = None) -> Conditioned:
     """``c`` through an optional extra zero-phase band limit: a 4th-order Butterworth low-pass at
     ``lowpass_hz`` and/or a 2nd-order high-pass at ``highpass_hz`` (Hz), in one filter pass."""

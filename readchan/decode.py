@@ -12,7 +12,7 @@ from typing import Callable
 import numpy as np
 
 from readchan.capture import Capture
-from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum, refine
+from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum, refine, signal_band_hz
 from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, classify_kind, clipped_fraction,
                              detect_head, detect_logic)
 from readchan.errors import ParameterError
@@ -183,7 +183,9 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
         hum = float(settings.notch)
         cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
     cond = condition(x, rate_hz, cs, channel=channel)
-    tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold)
+    band = signal_band_hz(cond.signal, rate_hz) if settings.auto_band and cs.lowpass_hz is None else None
+    first = refine(cond, lowpass_hz=1.5 * band) if band is not None else cond
+    tr = detect_head(first.signal, rate_hz, threshold=settings.threshold)
     refined = False
     if settings.notch == "auto":
         fit = fit_hum(cond.signal, rate_hz, quiet_mask(x.size, rate_hz, segment(tr)))
@@ -194,6 +196,8 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
     f_lp = f_hp = None
     if settings.auto_band:
         f_lp = auto_lowpass_hz(tr, rate_hz) if cs.lowpass_hz is None else None
+        if f_lp is None and band is not None:
+            f_lp = 1.5 * band
         f_hp = auto_highpass_hz(tr)
         if f_hp is not None and (f_hp <= (cs.highpass_hz or 0.0) or f_hp >= 0.25 * rate_hz):
             f_hp = None
