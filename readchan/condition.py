@@ -80,17 +80,19 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
 def signal_band_hz(x: np.ndarray, rate_hz: float, *, ratio: float = 4.0) -> float | None:
     """Upper edge (Hz) of the band where the signal stands above white noise, or None.
 
-    Welch periodogram (1024-point segments, at most ~1 M samples from the middle of the
-    capture); the noise floor is the median power over the top quarter of the band; the signal
+    Welch periodogram (1024-point segments, over the most energetic stretch of at most 2¹⁸ samples); the noise floor is the median power over the top quarter of the band; the signal
     band ends at the first frequency from which the power stays below ``ratio`` × the floor.
     None when the signal fills more than half the band (nothing to gain from a low-pass).
     """
     n = x.size
     if n < 4096:
         return None
-    if n > 1 << 20:
-        mid = n // 2
-        x = x[mid - (1 << 19): mid + (1 << 19)]
+    block = 1 << 18
+    if n > block:                      # the most energetic stretch: where the swipes are
+        nb = n // block
+        energy = np.einsum("ij,ij->i", x[: nb * block].reshape(nb, block), x[: nb * block].reshape(nb, block))
+        k = int(np.argmax(energy))
+        x = x[k * block:(k + 1) * block]
     f, p = sps.welch(x, fs=rate_hz, nperseg=1024)
     nyq = rate_hz / 2
     floor = np.median(p[f > 0.75 * nyq])

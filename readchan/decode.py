@@ -236,7 +236,9 @@ def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], setti
     """
     reads = []
     for seg in segs:
-        bs = recover_bits(tr.times_s[seg.start:seg.stop], loop_gain=settings.loop_gain, period_at=period_at)
+        # a quick threshold pass finds the F2F-regular span; the full parse runs on that span
+        bs = recover_bits(tr.times_s[seg.start:seg.stop], loop_gain=settings.loop_gain, period_at=period_at,
+                          method="loop")
         span = bs.regular_span()
         if span is None:
             continue

@@ -144,24 +144,28 @@ def _period_trace(t: np.ndarray, bs: BitStream) -> np.ndarray:
 def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
     """Viterbi parse of the intervals of ``t`` into F2F bits against the period trace."""
     d = np.diff(t)
-    r = (d / period[:-1]).tolist()
-    n = len(r)
-    inf = float("inf")
-    cost = [0.0] + [inf] * n
+    r_arr = d / period[:-1]
+    n = r_arr.size
+    # move costs, vectorised; the recursion below only adds and compares them
+    zero = ((r_arr - 1.0) ** 2).tolist()
+    lone = (0.5 + (r_arr - 0.5) ** 2).tolist()
+    pair = [float("inf")] + (((r_arr[:-1] + r_arr[1:] - 1.0) ** 2)
+                             + 0.5 * ((r_arr[:-1] - 0.5) ** 2 + (r_arr[1:] - 0.5) ** 2)).tolist()
+    cost = [0.0] * (n + 1)
     move = [0] * (n + 1)          # 1: a 0 bit (one interval); 2: a 1 bit (two); 3: a lone half
+    prev2, prev1 = float("inf"), 0.0
     for i in range(1, n + 1):
-        ri = r[i - 1]
-        best = cost[i - 1] + (ri - 1.0) ** 2
-        mv = 1
-        lone = cost[i - 1] + 0.5 + (ri - 0.5) ** 2
-        if lone < best:
-            best, mv = lone, 3
-        if i >= 2:
-            a, b = r[i - 2], ri
-            c1 = cost[i - 2] + (a + b - 1.0) ** 2 + 0.5 * ((a - 0.5) ** 2 + (b - 0.5) ** 2)
-            if c1 < best:
-                best, mv = c1, 2
+        a = prev1 + zero[i - 1]
+        b = prev1 + lone[i - 1]
+        c = prev2 + pair[i - 1]
+        if a <= b and a <= c:
+            best, mv = a, 1
+        elif c <= b:
+            best, mv = c, 2
+        else:
+            best, mv = b, 3
         cost[i], move[i] = best, mv
+        prev2, prev1 = prev1, best
     moves = []
     i = n
     while i > 0:
@@ -169,12 +173,14 @@ def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
         moves.append(mv)
         i -= 2 if mv == 2 else 1
     moves.reverse()
-    bits, start, per, margin, flags, first = [], [], [], [], [], []
+    r = r_arr.tolist()
+    lone, long_ = int(FLAG_LONE_HALF), int(FLAG_LONG)
+    bits, first, margin, flags = [], [], [], []
     i = 0
     for mv in moves:
-        start.append(t[i]); per.append(period[i]); first.append(i)
+        first.append(i)
         if mv == 1:
-            bits.append(0); flags.append(int(FLAG_LONG) if r[i] > 1.6 else 0)
+            bits.append(0); flags.append(long_ if r[i] > 1.6 else 0)
             margin.append(abs(r[i] - BOUNDARY) * 4.0)
             i += 1
         elif mv == 2:
@@ -182,10 +188,11 @@ def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
             margin.append(min(abs(r[i] - BOUNDARY), abs(r[i + 1] - BOUNDARY)) * 4.0)
             i += 2
         else:
-            bits.append(1); flags.append(int(FLAG_LONE_HALF)); margin.append(0.0)
+            bits.append(1); flags.append(lone); margin.append(0.0)
             i += 1
-    return BitStream(np.asarray(bits, np.uint8), np.asarray(start), np.asarray(per), np.asarray(margin),
-                     np.asarray(flags, np.uint8), np.asarray(first, np.int64), np.asarray(r))
+    first_a = np.asarray(first, np.int64)
+    return BitStream(np.asarray(bits, np.uint8), t[first_a], period[first_a], np.asarray(margin),
+                     np.asarray(flags, np.uint8), first_a, r_arr)
 
 
 def _recover_loop(times_s: np.ndarray, *, loop_gain: float = 0.25,
