@@ -148,7 +148,7 @@ def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
     n = r_arr.size
     # move costs, vectorised; the recursion below only adds and compares them
     zero = ((r_arr - 1.0) ** 2).tolist()
-    lone = (0.5 + (r_arr - 0.5) ** 2).tolist()
+    lone_cost = (0.5 + (r_arr - 0.5) ** 2).tolist()
     pair = [float("inf")] + (((r_arr[:-1] + r_arr[1:] - 1.0) ** 2)
                              + 0.5 * ((r_arr[:-1] - 0.5) ** 2 + (r_arr[1:] - 0.5) ** 2)).tolist()
     cost = [0.0] * (n + 1)
@@ -156,7 +156,7 @@ def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
     prev2, prev1 = float("inf"), 0.0
     for i in range(1, n + 1):
         a = prev1 + zero[i - 1]
-        b = prev1 + lone[i - 1]
+        b = prev1 + lone_cost[i - 1]
         c = prev2 + pair[i - 1]
         if a <= b and a <= c:
             best, mv = a, 1
