@@ -236,17 +236,16 @@ def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], setti
     """
     reads = []
     for seg in segs:
-        # a quick threshold pass finds the F2F-regular span; the full parse runs on that span
-        bs = recover_bits(tr.times_s[seg.start:seg.stop], loop_gain=settings.loop_gain, period_at=period_at,
-                          method="loop")
+        bs = recover_bits(tr.times_s[seg.start:seg.stop], loop_gain=settings.loop_gain, period_at=period_at)
         span = bs.regular_span()
         if span is None:
             continue
         # trim the noise detections around the recording, and time the read by what is left
+        if span != (0, seg.stop - seg.start):
+            bs = bs.between(*span)
         a, b = seg.start + span[0], seg.start + span[1]
         seg = Segment(a, b, float(tr.times_s[a]), float(tr.times_s[b - 1]))
         sub = tr.subset(a, b)
-        bs = recover_bits(sub.times_s, loop_gain=settings.loop_gain, period_at=period_at)
         if bs.regularity < MIN_REGULARITY:
             continue
         fr = frame(bs.bits, settings.fmt) if settings.fmt is not None else frame_auto(bs.bits)

@@ -85,6 +85,17 @@ class BitStream:
             return None
         return int(hits[0]), int(hits[-1] + run + 1)
 
+    def between(self, a: int, b: int) -> "BitStream":
+        """The bits that lie within transitions ``a:b``, renumbered from transition ``a``."""
+        keep = (self.first_transition >= a) & (self.first_transition < b - 1)
+        if keep.any():
+            last = int(np.flatnonzero(keep)[-1])
+            width = 2 if self.bits[last] == 1 and not self.flags[last] & FLAG_LONE_HALF else 1
+            if self.first_transition[last] + width > b - 1:
+                keep[last] = False
+        return BitStream(self.bits[keep], self.start_s[keep], self.period_s[keep], self.margin[keep],
+                         self.flags[keep], self.first_transition[keep] - a, self.ratio[a:b - 1])
+
     @property
     def regularity(self) -> float:
         """Fraction of intervals within ±0.15 of a half cell or ±0.2 of a full cell.
