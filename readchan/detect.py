@@ -67,8 +67,12 @@ class Transitions:
     def subset(self, start: int, stop: int) -> "Transitions":
         """Transitions ``start:stop`` as a new object."""
         sl = slice(start, stop)
+        flags = self.flags[sl].copy()
+        if flags.size:
+            # polarity against a transition outside the subset says nothing about this one
+            flags[0] &= ~FLAG_MISSING
         return Transitions(self.times_s[sl], self.index[sl], self.amplitude[sl], self.envelope[sl],
-                           self.flags[sl], self.rate_hz, self.kind, self.noise_rms)
+                           flags, self.rate_hz, self.kind, self.noise_rms)
 
 
 def classify_kind(x: np.ndarray) -> str:

@@ -810,8 +810,6 @@ def _anomalies(r: Read, rate_hz: float) -> tuple[Anomaly, ...]:
 
     for flag, kind in ((FLAG_MISSING, "polarity"), (FLAG_EXTRA, "extra"), (FLAG_WEAK, "weak")):
         for j in np.flatnonzero(tr.flags & flag):
-            if j == 0 and flag == FLAG_MISSING:
-                continue        # its same-polarity predecessor lies outside the read (noise)
             bit = int(np.searchsorted(bs.first_transition, j, side="right") - 1) if len(bs) else None
             tag(kind, tr.times_s[j], bit if bit is not None and bit >= 0 else None)
     for flag, kind in ((FLAG_LONE_HALF, "lone-half"), (FLAG_LONG, "long")):
