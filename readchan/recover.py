@@ -33,6 +33,11 @@ SEARCH_BITS = 8
 MAX_FLIPS = 3
 """Most bits revised together."""
 
+DOUBT_MARGIN = 0.5
+"""A decision is doubtful below this margin: its interval lay within ⅛ cell of the boundary.
+Only doubtful decisions are ever revised: a confidently read bit that is wrong was recorded
+wrong, and no timing evidence speaks for changing it."""
+
 
 @dataclass(frozen=True)
 class Recovery:
@@ -68,8 +73,10 @@ def _data_region(bits: np.ndarray, base: Frame) -> np.ndarray:
 
 
 def least_confident(bits: np.ndarray, margin: np.ndarray, base: Frame, n: int = SEARCH_BITS) -> tuple[int, ...]:
-    """The ``n`` least confident bits (smallest margin) of the read's data region."""
+    """The ``n`` least confident bits (smallest margin) of the read's data region, of those
+    whose margin is below :data:`DOUBT_MARGIN`."""
     region = _data_region(bits, base)
+    region = region[margin[region] < DOUBT_MARGIN]
     order = region[np.argsort(margin[region], kind="stable")]
     return tuple(int(i) for i in order[:n])
 
@@ -77,7 +84,8 @@ def least_confident(bits: np.ndarray, margin: np.ndarray, base: Frame, n: int = 
 def confirm_correction(fr: Frame, bits: np.ndarray, margin: np.ndarray, fmt: CharFormat, *,
                        search_bits: int = SEARCH_BITS) -> Frame:
     """Keep a single-character correction only if the bit it revised is among the
-    ``search_bits`` least confident decisions; else return the read uncorrected and invalid.
+    ``search_bits`` least confident decisions and doubtful (margin below
+    :data:`DOUBT_MARGIN`); else return the read uncorrected and invalid.
 
     The ISO parity + LRC code has minimum distance 4: it corrects one error and detects two,
     but three (for example two in one character, keeping its parity, and one in another in a
