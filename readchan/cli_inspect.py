@@ -45,8 +45,7 @@ def inspect(
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write plots to this .png (.pdf, .svg) file; with "
                                         "several captures, one file each, named FILE-<capture>.png."),
 ) -> None:
-    """Measure the read channel of CAPTURE files: amplitude, noise, hum, PW50, speed, timing
-    margin and anomalies of every read, with a verdict naming the quantity of least headroom."""
+    """Measure every read: amplitude, noise, hum, PW50, speed, timing margin, anomalies, verdict."""
     from readchan.capture import load_capture
     from readchan.diagnose import inspect_capture
     from readchan.render import exit_code

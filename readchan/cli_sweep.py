@@ -101,8 +101,7 @@ def sweep(
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write a PNG curve of success and character error rate."),
     force: bool = typer.Option(False, help="Overwrite the --plot file if it exists."),
 ) -> None:
-    """Sweep one impairment over a range: read success, character error rate and false
-    accepts per step, and the first step where success falls below 99 %."""
+    """Sweep one impairment: success, character errors and false accepts per step; where it drops below 99 %."""
     from readchan.synth import Impairments
     from readchan.sweep import DEMO_TEXTS, Scenario, SweepSpec, check_plot_path, plot_sweep, run_sweep
 
