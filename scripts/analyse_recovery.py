@@ -13,7 +13,7 @@ Two margin models:
 * ``blind``: wrong bits look like any other (all margins uniform in 0..1): the search set is
   then a random draw, the hostile case for the uniqueness argument.
 
-Run: python scripts/analyse_recovery.py [--trials 20000] [--seed 1]
+Run: python scripts/analyse_recovery.py [--trials 20000] [--seed 1] [--patterns 2,3,burst,char3,1+2] [--tracks 1,2,3]
 """
 
 from __future__ import annotations
@@ -24,7 +24,7 @@ import numpy as np
 
 from readchan.formats import TRACKS
 from readchan.framing import encode_text, frame
-from readchan.recover import MAX_FLIPS, SEARCH_BITS, candidate_count, confirm_correction, recover
+from readchan.recover import CORRECTION_RANK, MAX_FLIPS, candidate_count, confirm_correction, recover
 
 
 def random_text(track: int, rng: np.random.Generator) -> str:
@@ -78,18 +78,20 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--trials", type=int, default=20000)
     ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--patterns", default="1,2,3,burst,char3,1+2", help="error patterns, comma separated")
+    ap.add_argument("--tracks", default="1,2,3")
     args = ap.parse_args()
     rng = np.random.default_rng(args.seed)
-    print(f"search: {SEARCH_BITS} least confident bits, up to {MAX_FLIPS} flipped together "
-          f"({candidate_count()} candidates); accepted only when unique")
-    print("errors: n random bits of the data; burst: 2 adjacent bits of one character; char3: 3 bits of")
+    print(f"correction kept only on one of the {CORRECTION_RANK} least confident bits; search: up to {MAX_FLIPS} "
+          f"of the k + 1 least confident bits ({candidate_count()} candidates at most); accepted only when unique")
+    print("errors: n random bits of the data (1: a single error, for the correction); burst: 2 adjacent bits of one character; char3: 3 bits of")
     print("one character; 1+2: one bit in a character and two in another.  FA = false accepts (valid,")
     print("wrong text), by the single-character correction of the framing or by the recovery search;")
     print("'upper' is a 95 % upper bound on the recovery's false-accept rate (3/n when none is seen).")
     print(f"{'track':>5} {'errors':>6} {'model':>7} {'trials':>7} {'corrected':>9} {'recovered':>9} {'invalid':>8}"
           f" {'FA corr.':>8} {'FA recov.':>9} {'upper':>8}")
-    for track in (1, 2, 3):
-        for pattern in ("2", "3", "burst", "char3", "1+2"):
+    for track in (int(t) for t in args.tracks.split(",")):
+        for pattern in args.patterns.split(","):
             for model in ("timing", "blind"):
                 counts = dict.fromkeys(("right", "recovered", "invalid", "lost", "wrong-correction", "wrong-recovery"), 0)
                 for _ in range(args.trials):
