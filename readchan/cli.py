@@ -79,20 +79,34 @@ def _channels(channel: Optional[list[int]]):
     return None if not channel else list(channel)
 
 
+# Options shared by the commands that decode (decode, inspect).
+CAPTURES = typer.Argument(..., help="Capture files: WAV/FLAC/AIFF audio or CSV.")
+FORMAT = typer.Option("auto", "--format", "-f",
+                      help="Character format: auto, iso-alpha, iso-bcd, track1..3, or custom:bits=..,parity=..,...")
+CHANNEL = typer.Option(None, "--channel", "-c", help="Channel(s) to read, from 0 (default all).")
+KIND = typer.Option(Kind.auto, help="Signal kind: head pulses, logic-level edges, or auto-detect.")
+TRACK = typer.Option(None, min=1, max=3, help="ISO track the channel holds (for the density).")
+RATE = typer.Option(None, "--rate", help="Sample rate in Hz for CSV files with no time column.")
+NOTCH = typer.Option("auto", help="Mains hum removal: auto, off, or a notch frequency in Hz.")
+LOWPASS = typer.Option(None, "--lowpass-hz", help="Optional low-pass corner in Hz.")
+HIGHPASS = typer.Option(20.0, "--highpass-hz", help="Baseline-removal high-pass corner in Hz (0: off).")
+JSON = typer.Option(False, "--json", help="Print one JSON object on stdout.")
+UNMASK = typer.Option(False, "--unmask", help="Show account numbers whole (only for cards you may read).")
+
+
 @app.command()
 def decode(
-    captures: list[Path] = typer.Argument(..., help="Capture files: WAV/FLAC/AIFF audio or CSV."),
-    fmt: str = typer.Option("auto", "--format", "-f",
-                            help="Character format: auto, iso-alpha, iso-bcd, track1..3, or custom:bits=..,parity=..,..."),
-    channel: Optional[list[int]] = typer.Option(None, "--channel", "-c", help="Channel(s) to decode, from 0 (default all)."),
-    kind: Kind = typer.Option(Kind.auto, help="Signal kind: head pulses, logic-level edges, or auto-detect."),
-    track: Optional[int] = typer.Option(None, min=1, max=3, help="ISO track the channel holds (for the density)."),
-    rate: Optional[float] = typer.Option(None, "--rate", help="Sample rate in Hz for CSV files with no time column."),
-    notch: str = typer.Option("auto", help="Mains notch: auto, off, or a frequency in Hz."),
-    lowpass_hz: Optional[float] = typer.Option(None, "--lowpass-hz", help="Optional low-pass corner in Hz."),
-    highpass_hz: float = typer.Option(20.0, "--highpass-hz", help="Baseline-removal high-pass corner in Hz (0: off)."),
-    as_json: bool = typer.Option(False, "--json", help="Print one JSON object on stdout."),
-    unmask: bool = typer.Option(False, "--unmask", help="Show account numbers whole (only for cards you may read)."),
+    captures: list[Path] = CAPTURES,
+    fmt: str = FORMAT,
+    channel: Optional[list[int]] = CHANNEL,
+    kind: Kind = KIND,
+    track: Optional[int] = TRACK,
+    rate: Optional[float] = RATE,
+    notch: str = NOTCH,
+    lowpass_hz: Optional[float] = LOWPASS,
+    highpass_hz: float = HIGHPASS,
+    as_json: bool = JSON,
+    unmask: bool = UNMASK,
 ) -> None:
     """Decode the tracks held in CAPTURE files: characters, parity, LRC and fields."""
     from readchan.capture import load_capture

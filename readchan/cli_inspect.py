@@ -18,7 +18,8 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from readchan.cli import Kind, _channels, _settings, app, err, out
+from readchan.cli import (CAPTURES, CHANNEL, FORMAT, HIGHPASS, JSON, KIND, LOWPASS, NOTCH, RATE, TRACK, UNMASK, Kind,
+                          _channels, _settings, app, err, out)
 from readchan.diagnose import ChannelReport, ReadReport
 from readchan.errors import ParameterError
 from readchan.fields import mask_text
@@ -30,18 +31,17 @@ TRACE_POINTS = 64
 
 @app.command()
 def inspect(
-    captures: list[Path] = typer.Argument(..., help="Capture files: WAV/FLAC/AIFF audio or CSV."),
-    fmt: str = typer.Option("auto", "--format", "-f",
-                            help="Character format: auto, iso-alpha, iso-bcd, track1..3, or custom:bits=..,parity=..,..."),
-    channel: Optional[list[int]] = typer.Option(None, "--channel", "-c", help="Channel(s) to inspect, from 0 (default all)."),
-    kind: Kind = typer.Option(Kind.auto, help="Signal kind: head pulses, logic-level edges, or auto-detect."),
-    track: Optional[int] = typer.Option(None, min=1, max=3, help="ISO track the channel holds (for the density)."),
-    rate: Optional[float] = typer.Option(None, "--rate", help="Sample rate in Hz for CSV files with no time column."),
-    notch: str = typer.Option("auto", help="Mains notch for decoding: auto, off, or a frequency in Hz."),
-    lowpass_hz: Optional[float] = typer.Option(None, "--lowpass-hz", help="Optional low-pass corner in Hz (decoding)."),
-    highpass_hz: float = typer.Option(20.0, "--highpass-hz", help="Baseline-removal high-pass corner in Hz (0: off)."),
-    as_json: bool = typer.Option(False, "--json", help="Print one JSON object on stdout."),
-    unmask: bool = typer.Option(False, "--unmask", help="Show account numbers whole (only for cards you may read)."),
+    captures: list[Path] = CAPTURES,
+    fmt: str = FORMAT,
+    channel: Optional[list[int]] = CHANNEL,
+    kind: Kind = KIND,
+    track: Optional[int] = TRACK,
+    rate: Optional[float] = RATE,
+    notch: str = NOTCH,
+    lowpass_hz: Optional[float] = LOWPASS,
+    highpass_hz: float = HIGHPASS,
+    as_json: bool = JSON,
+    unmask: bool = UNMASK,
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write plots to this .png (.pdf, .svg) file; with "
                                         "several captures, one file each, named FILE-<capture>.png."),
 ) -> None:

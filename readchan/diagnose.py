@@ -69,7 +69,7 @@ from scipy.ndimage import median_filter
 from readchan.capture import Capture
 from readchan.condition import ConditionSettings, HumFit, condition, fit_hum
 from readchan.decode import ChannelResult, DecodeSettings, Read, decode_channel, quiet_mask
-from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK
+from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK, noise_rms
 from readchan.timing import BOUNDARY, FLAG_LONE_HALF, FLAG_LONG
 
 __all__ = [
@@ -497,22 +497,12 @@ def _front_end(x, rate_hz, result, quiet, highpass_hz, units):
         q = w[quiet]
         noise, how = float(np.sqrt(np.mean((q - q.mean()) ** 2))), "quiet"
     else:
-        noise, how = _block_noise(w, rate_hz), "blocks"
+        noise, how = noise_rms(w, rate_hz), "blocks"
     mains = None if hum is None else (50.0 if abs(hum.freq_hz - 50.0) < abs(hum.freq_hz - 60.0) else 60.0)
     fe = FrontEnd(result.channel, "head", units, rate_hz, x.size / rate_hz, cond.dc_offset, wander,
                   None if hum is None else hum.freq_hz, mains, None if hum is None else hum.amplitude,
                   noise, how, quiet_s, len(result.transitions))
     return fe, np.ascontiguousarray(w)
-
-
-def _block_noise(w: np.ndarray, rate_hz: float) -> float:
-    """10th percentile of the RMS of 1 ms blocks (reads low for pure noise; a fallback)."""
-    block = max(16, int(rate_hz * 1e-3))
-    nb = w.size // block
-    if nb < 4:
-        return float(np.std(w))
-    r = np.sqrt(np.mean(w[: nb * block].reshape(nb, block) ** 2, axis=1))
-    return float(np.percentile(r, 10))
 
 
 def _clipped(x: np.ndarray) -> np.ndarray:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import sys
 
 import pytest
 from hypothesis import HealthCheck, settings
@@ -18,6 +19,17 @@ settings.register_profile("ci", max_examples=25, deadline=None,
 settings.register_profile("thorough", max_examples=300, deadline=None,
                           suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 settings.load_profile(os.environ.get("READCHAN_HYPOTHESIS", "ci"))
+
+
+def run_cli(monkeypatch, capsys, *args):
+    """Run the ``readchan`` command line in-process; returns (exit code, stdout, stderr)."""
+    from readchan import cli
+
+    monkeypatch.setattr(sys, "argv", ["readchan", *map(str, args)])
+    with pytest.raises(SystemExit) as e:
+        cli.main()
+    out, err = capsys.readouterr()
+    return e.value.code, out, err
 
 
 def synth_capture(texts: dict[int, str], *, rate_hz=48_000.0, speed=None, imp=None, seed=0, **kw):

@@ -11,19 +11,13 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from readchan import cli
+from conftest import run_cli as run
 from readchan.errors import EXIT_BAD_INPUT, EXIT_INVALID, EXIT_NO_DATA, EXIT_VALID
 
 FIXTURES = Path(__file__).resolve().parent.parent / "fixtures"
 T1 = "%B4000001234567899^QUILL/ODESSA M^2912101000000000000?"
 
 
-def run(monkeypatch, capsys, *args):
-    monkeypatch.setattr(sys, "argv", ["readchan", *map(str, args)])
-    with pytest.raises(SystemExit) as e:
-        cli.main()
-    out, err = capsys.readouterr()
-    return e.value.code, out, err
 
 
 def test_decode_json_is_one_object_with_the_stable_keys(monkeypatch, capsys):

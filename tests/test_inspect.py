@@ -9,13 +9,12 @@ The wavelength-response checks (Wallace spacing loss, gap loss) live in test_syn
 from __future__ import annotations
 
 import json
-import sys
 from pathlib import Path
 
 import numpy as np
 import pytest
 
-from readchan import cli
+from conftest import run_cli as run
 from readchan.capture import Capture, write_capture
 from readchan.diagnose import inspect_capture, isolated_pw50_cell
 from readchan.errors import EXIT_BAD_INPUT, EXIT_INVALID, EXIT_NO_DATA, EXIT_VALID
@@ -41,12 +40,6 @@ def _only_read(reports):
     return reads[0]
 
 
-def run(monkeypatch, capsys, *args):
-    monkeypatch.setattr(sys, "argv", ["readchan", *map(str, args)])
-    with pytest.raises(SystemExit) as e:
-        cli.main()
-    out, err = capsys.readouterr()
-    return e.value.code, out, err
 
 
 # --- measurements against synthesized truth --------------------------------------------------

@@ -3,12 +3,11 @@
 from __future__ import annotations
 
 import json
-import sys
 
 import numpy as np
 import pytest
 
-from readchan import cli
+from conftest import run_cli as run
 from readchan.errors import EXIT_BAD_INPUT, ParameterError
 from readchan.formats import TRACKS
 from readchan.sweep import (Scenario, StepResult, SweepResult, SweepSpec, edit_distance, run_sweep, run_trial,
@@ -19,12 +18,6 @@ from readchan.sweep import _score
 QUICK = Scenario(track=2, n_chars=8)
 
 
-def run(monkeypatch, capsys, *args):
-    monkeypatch.setattr(sys, "argv", ["readchan", *map(str, args)])
-    with pytest.raises(SystemExit) as e:
-        cli.main()
-    out, err = capsys.readouterr()
-    return e.value.code, out, err
 
 
 QUICK_ARGS = ["--track", "2", "--chars", "8", "--workers", "1"]
