@@ -22,7 +22,7 @@ from readchan.render import reads_of
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 
-T1 = "%B4000001234567899^QUILL/ODESSA M^2912101000000000000?"   # invented card
+T1 = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"   # invented card
 
 
 def main() -> None:

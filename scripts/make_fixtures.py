@@ -15,8 +15,8 @@ from readchan.synth.card import track_content
 HERE = Path(__file__).resolve().parent.parent / "fixtures"
 
 # Invented test card: the name and account number are made up (the number passes Luhn).
-T1 = "%B4000001234567899^QUILL/ODESSA M^2912101000000000000?"
-T2 = ";4000001234567899=29121010000000000?"
+T1 = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"
+T2 = ";9912345678901239=29121010000000000?"
 T3 = ";011234567890123445=7247241000000000000303000000000000000000?"
 
 FIXTURES = {

@@ -49,7 +49,7 @@ def decode_reads(cap: Capture, **kw):
 def demo_texts():
     """Invented card content (the name and account number are made up; the PAN passes Luhn)."""
     return {
-        1: "%B4000001234567899^QUILL/ODESSA M^2912101000000000000?",
-        2: ";4000001234567899=29121010000000000?",
+        1: "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?",
+        2: ";9912345678901239=29121010000000000?",
         3: ";011234567890123445=7247241000000000000303000000000000000000?",
     }

@@ -108,7 +108,7 @@ def _damaged(text: str, track: int, flips: list[int]):
 
 
 def test_recovery_revises_exactly_the_low_margin_bits_it_reports():
-    text = ";4000001234567899=29121010000000000?"
+    text = ";9912345678901239=29121010000000000?"
     bits, where = _damaged(text, 2, [5 * 7 + 0, 5 * 7 + 1, 5 * 7 + 3])   # three bits of character 7
     margin = np.ones(bits.size)
     margin[where] = [0.05, 0.1, 0.02]
@@ -126,7 +126,7 @@ def test_recovery_revises_exactly_the_low_margin_bits_it_reports():
 
 
 def test_recovery_does_not_touch_confident_bits():
-    text = ";4000001234567899=29121010000000000?"
+    text = ";9912345678901239=29121010000000000?"
     bits, where = _damaged(text, 2, [5 * 7 + 0, 5 * 7 + 1, 5 * 7 + 3])
     margin = np.ones(bits.size)
     margin[where] = 0.9                        # the damaged bits look sure...
@@ -139,7 +139,7 @@ def test_recovery_does_not_touch_confident_bits():
 def test_a_correction_that_revises_a_confident_bit_is_not_believed():
     # Three errors the ISO code miscorrects (ISO/IEC 7811-2 parity + LRC, minimum distance 4):
     # two bits of character 3 (its parity survives) and one bit of character 9 in a shared column.
-    text = ";4000001234567899=29121010000000000?"
+    text = ";9912345678901239=29121010000000000?"
     bits, where = _damaged(text, 2, [5 * 3 + 0, 5 * 3 + 1, 5 * 9 + 0])
     fmt = TRACKS[2].fmt
     naive = frame(bits, fmt)
@@ -151,7 +151,7 @@ def test_a_correction_that_revises_a_confident_bit_is_not_believed():
 
 
 def test_a_correction_of_a_doubtful_bit_is_kept():
-    text = "%B4000001234567899^QUILL/ODESSA M^2912101000000000000?"
+    text = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"
     bits, where = _damaged(text, 1, [7 * 10 + 2])
     fmt = TRACKS[1].fmt
     fr = frame(bits, fmt)

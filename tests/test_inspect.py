@@ -24,8 +24,8 @@ from readchan.synth.head import LorentzianPulse
 from conftest import synth_capture
 
 FIXTURES = Path(__file__).resolve().parent.parent / "fixtures"
-T1 = "%B4000001234567899^QUILL/ODESSA M^2912101000000000000?"   # invented; the PAN passes Luhn
-T2 = ";4000001234567899=29121010000000000?"
+T1 = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"   # invented; the PAN passes Luhn
+T2 = ";9912345678901239=29121010000000000?"
 
 
 def _inspect(texts, **kw):
@@ -217,7 +217,7 @@ def test_inspect_json_is_one_object_with_si_keys(monkeypatch, capsys):
 def test_inspect_masks_account_numbers_unless_unmasked(monkeypatch, capsys):
     for args in (["--json"], []):
         _, out, _ = run(monkeypatch, capsys, "inspect", *args, "--channel", "0", FIXTURES / "three-track-swipe.wav")
-        assert "4000001234567899" not in out and "400000******7899" in out
+        assert "9912345678901239" not in out and "991234******1239" in out
     _, out, _ = run(monkeypatch, capsys, "inspect", "--json", "--unmask", "--channel", "0",
                     FIXTURES / "three-track-swipe.wav")
     assert json.loads(out)["reads"][0]["text"] == T1
