@@ -156,14 +156,13 @@ class HumFit:
         table_n = 8192
         table = _hum_basis(np.arange(table_n) / (table_n * self.freq_hz), self.freq_hz) @ self.coef
         phase = np.arange(n, dtype=float)
-        phase *= self.freq_hz / rate_hz
-        phase -= np.floor(phase)
-        return table[(phase * table_n).astype(np.int64) % table_n]
+        phase *= self.freq_hz / rate_hz * table_n
+        return table[phase.astype(np.int64) & (table_n - 1)]
 
 
-def _hum_basis(t: np.ndarray, f: float) -> np.ndarray:
+def _hum_basis(t: np.ndarray, f: float, harmonics: int = 3) -> np.ndarray:
     cols = []
-    for h in (1, 2, 3):
+    for h in range(1, harmonics + 1):
         w = 2 * np.pi * f * h * t
         cols += [np.cos(w), np.sin(w)]
     return np.stack(cols, axis=1)
@@ -187,13 +186,12 @@ def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: f
     # average over `step` samples before taking every step-th (a boxcar: 0.15 % loss at 60 Hz
     # for a 2 kHz step), so the noise does not alias into the fit at full strength
     w = max(1, int(rate_hz // 2000))
-    c = np.concatenate(([0.0], np.cumsum(x)))
     lo = np.clip(q - w // 2, 0, x.size - w)
-    smooth = (c[lo + w] - c[lo]) / w
+    smooth = x[lo[:, None] + np.arange(w)].mean(axis=1)
     t, y = q / rate_hz, smooth - np.mean(smooth)
 
     def fit(f: float, harmonics: bool):
-        A = _hum_basis(t, f) if harmonics else _hum_basis(t, f)[:, :2]
+        A = _hum_basis(t, f) if harmonics else _hum_basis(t, f, harmonics=1)
         coef, *_ = np.linalg.lstsq(A, y, rcond=None)
         return float(np.sum((y - A @ coef) ** 2)), f, coef
 
@@ -205,7 +203,7 @@ def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: f
     res, f, coef = best
     sigma = math.sqrt(res / max(q.size - 6, 1))
     amp = float(math.hypot(coef[0], coef[1]))
-    peak = float(np.percentile(np.abs(x), 99.9))
+    peak = float(np.percentile(np.abs(x[:: max(1, x.size // 500_000)]), 99.9))
     if amp < significance * sigma * math.sqrt(2.0 / q.size) or amp < 0.02 * peak:
         return None
     return HumFit(float(f), amp, coef, sigma)

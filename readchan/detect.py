@@ -148,15 +148,12 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
 
 def _lobe_peaks(x: np.ndarray, h: float, floor: float) -> tuple[np.ndarray, np.ndarray]:
     """Index and sign of the tallest peak above ``floor`` in every lobe of ``x`` (hysteresis
-    ± ``h``): peaks from ``find_peaks``, lobes from the hysteresis state, all vectorised."""
-    state = np.where(x > h, 1, np.where(x < -h, -1, 0)).astype(np.int8)
-    pos = np.where(state != 0, np.arange(x.size), 0)
-    np.maximum.accumulate(pos, out=pos)
-    state = state[pos]                       # hold the last definite side through the band
-    starts = np.flatnonzero(np.diff(state)) + 1
-    pk_pos, _ = sps.find_peaks(x, height=floor)
-    pk_neg, _ = sps.find_peaks(-x, height=floor)
-    idx = np.concatenate((pk_pos, pk_neg))
+    ± ``h``): peaks from ``find_peaks`` on |x|, lobes from the hysteresis state, vectorised."""
+    state = (x > h).view(np.int8) - (x < -h).view(np.int8)
+    definite = np.flatnonzero(state)
+    side = state[definite]
+    starts = definite[1:][side[1:] != side[:-1]]          # first sample of each new lobe
+    idx, _ = sps.find_peaks(np.abs(x), height=floor)
     if idx.size == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int8)
     lobe = np.searchsorted(starts, idx, side="right")

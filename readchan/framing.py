@@ -279,6 +279,8 @@ def frame_auto(bits: np.ndarray, formats: Iterable[CharFormat] = KNOWN_FORMATS) 
         found = _best(seq, fmt, fmt.max_chars)
         if found is not None and (best is None or found[0] > best[0]):
             best = found
+        if best is not None and best[0][:3] == (True, True, 2):
+            break   # valid, bordered by clocking zeros, no stray bits: no other format frames so
     return None if best is None else best[1]
 
 
