@@ -148,20 +148,27 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
 
 def _lobe_peaks(x: np.ndarray, h: float, floor: float) -> tuple[np.ndarray, np.ndarray]:
     """Index and sign of the tallest peak above ``floor`` in every lobe of ``x`` (hysteresis
-    ± ``h``): peaks from ``find_peaks`` on |x|, lobes from the hysteresis state, vectorised."""
-    state = (x > h).view(np.int8) - (x < -h).view(np.int8)
-    definite = np.flatnonzero(state)
-    side = state[definite]
-    starts = definite[1:][side[1:] != side[:-1]]          # first sample of each new lobe
-    idx, _ = sps.find_peaks(np.abs(x), height=floor)
+    ± ``h``), vectorised.
+
+    Peaks come from ``find_peaks`` on |x|.  Two neighbouring peaks of one sign lie in the same
+    lobe when the signal between them never crosses the opposite hysteresis level, which the
+    minimum (or maximum) of each stretch between peaks tells (``np.minimum.reduceat``).
+    """
+    a = np.abs(x)
+    idx, _ = sps.find_peaks(np.where(a > floor, a, 0.0))   # zeroing below the floor: fewer maxima
     if idx.size == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int8)
-    lobe = np.searchsorted(starts, idx, side="right")
-    order = np.lexsort((-np.abs(x[idx]), lobe))
-    idx, lobe = idx[order], lobe[order]
-    first = np.concatenate(([True], lobe[1:] != lobe[:-1]))
-    idx = np.sort(idx[first])
-    return idx.astype(np.int64), np.sign(x[idx]).astype(np.int8)
+    sgn = np.where(x[idx] > 0, 1, -1).astype(np.int8)
+    if idx.size == 1:
+        return idx.astype(np.int64), sgn
+    low = np.minimum.reduceat(x, idx)[:-1]      # min over [idx_k, idx_k+1)
+    high = np.maximum.reduceat(x, idx)[:-1]
+    same = (sgn[1:] == sgn[:-1]) & np.where(sgn[1:] > 0, low > -h, high < h)
+    group = np.concatenate(([0], np.cumsum(~same)))
+    order = np.lexsort((-np.abs(x[idx]), group))
+    first = np.concatenate(([True], group[order][1:] != group[order][:-1]))
+    keep = np.sort(order[first])
+    return idx[keep].astype(np.int64), sgn[keep]
 
 
 def _alternate(x, idx, sgn, amp, env, strong, threshold):
