@@ -207,23 +207,3 @@ def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: f
     if amp < significance * sigma * math.sqrt(2.0 / q.size) or amp < 0.02 * peak:
         return None
     return HumFit(float(f), amp, coef, sigma)
-
-
-def estimate_hum_hz(x: np.ndarray, rate_hz: float, *, ratio_db: float = 12.0) -> float | None:
-    """Return 50.0 or 60.0 if the spectrum holds a mains line ``ratio_db`` above its
-    neighbourhood (Welch periodogram, 0.5 Hz resolution or finer), else None."""
-    n = x.size
-    if n < rate_hz * 0.2:
-        return None
-    nper = int(min(n, 2 ** math.ceil(math.log2(rate_hz * 2))))
-    f, p = sps.welch(x, fs=rate_hz, nperseg=nper)
-    best, best_ratio = None, ratio_db
-    for mains in (50.0, 60.0):
-        line = (f > mains - 1.5) & (f < mains + 1.5)
-        near = ((f > mains - 12) & (f < mains - 4)) | ((f > mains + 4) & (f < mains + 12))
-        if not line.any() or not near.any():
-            continue
-        ratio = 10 * math.log10(p[line].max() / max(np.median(p[near]), 1e-300))
-        if ratio > best_ratio:
-            best, best_ratio = mains, ratio
-    return best

@@ -36,7 +36,8 @@ class DecodeSettings:
     kind : ``"auto"``, ``"head"`` (pulse peaks) or ``"logic"`` (two-level edges).
     track : ISO track number (1–3) the channel holds, or None to guess from the format.
     condition : conditioning settings (head signals only).
-    notch : ``"auto"`` (notch mains hum when the spectrum shows it), ``"off"``, or a frequency.
+    notch : ``"auto"`` (fit mains hum on the quiet stretches and subtract it, see
+        :func:`readchan.condition.fit_hum`), ``"off"``, or a frequency to notch (Hz).
     threshold : detection threshold as a fraction of the local pulse envelope.
     loop_gain : gain α of the bit-period tracking loop.
     auto_band : band-limit the signal to the pulse rate found by a first detection pass: a
