@@ -154,17 +154,32 @@ def _period_trace(t: np.ndarray, bs: BitStream) -> np.ndarray:
     return np.interp(t, mid, c)
 
 
+def _assemble(t: np.ndarray, first: list[int], kind: list[int], r: np.ndarray, period: np.ndarray) -> BitStream:
+    """A BitStream from per-bit decisions: ``first`` interval index and ``kind`` (1: a 0 bit of
+    one interval, 2: a 1 bit of two, 3: a lone half), vectorised over the bits."""
+    first_a = np.asarray(first, np.int64)
+    kind_a = np.asarray(kind, np.int8)
+    dist = np.abs(r - BOUNDARY) * 4.0
+    margin = dist[first_a]
+    two = np.flatnonzero(kind_a == 2)
+    margin[two] = np.minimum(margin[two], dist[first_a[two] + 1])
+    lone = kind_a == 3
+    margin[lone] = 0.0
+    flags = np.where(lone, FLAG_LONE_HALF,
+                     np.where((kind_a == 1) & (r[first_a] > 1.6), FLAG_LONG, 0)).astype(np.uint8)
+    return BitStream((kind_a != 1).astype(np.uint8), t[first_a], np.asarray(period, float), margin, flags,
+                     first_a, r)
+
+
 def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
     """Viterbi parse of the intervals of ``t`` into F2F bits against the period trace."""
-    d = np.diff(t)
-    r_arr = d / period[:-1]
-    n = r_arr.size
+    r = np.diff(t) / period[:-1]
+    n = r.size
     # move costs, vectorised; the recursion below only adds and compares them
-    zero = ((r_arr - 1.0) ** 2).tolist()
-    lone_cost = (0.5 + (r_arr - 0.5) ** 2).tolist()
-    pair = [float("inf")] + (((r_arr[:-1] + r_arr[1:] - 1.0) ** 2)
-                             + 0.5 * ((r_arr[:-1] - 0.5) ** 2 + (r_arr[1:] - 0.5) ** 2)).tolist()
-    cost = [0.0] * (n + 1)
+    zero = ((r - 1.0) ** 2).tolist()
+    lone_cost = (0.5 + (r - 0.5) ** 2).tolist()
+    pair = [float("inf")] + (((r[:-1] + r[1:] - 1.0) ** 2)
+                             + 0.5 * ((r[:-1] - 0.5) ** 2 + (r[1:] - 0.5) ** 2)).tolist()
     move = [0] * (n + 1)          # 1: a 0 bit (one interval); 2: a 1 bit (two); 3: a lone half
     prev2, prev1 = float("inf"), 0.0
     for i in range(1, n + 1):
@@ -172,40 +187,24 @@ def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
         b = prev1 + lone_cost[i - 1]
         c = prev2 + pair[i - 1]
         if a <= b and a <= c:
-            best, mv = a, 1
+            prev2, prev1 = prev1, a
+            move[i] = 1
         elif c <= b:
-            best, mv = c, 2
+            prev2, prev1 = prev1, c
+            move[i] = 2
         else:
-            best, mv = b, 3
-        cost[i], move[i] = best, mv
-        prev2, prev1 = prev1, best
-    moves = []
+            prev2, prev1 = prev1, b
+            move[i] = 3
+    kinds = []
     i = n
     while i > 0:
         mv = move[i]
-        moves.append(mv)
+        kinds.append(mv)
         i -= 2 if mv == 2 else 1
-    moves.reverse()
-    r = r_arr.tolist()
-    lone, long_ = int(FLAG_LONE_HALF), int(FLAG_LONG)
-    bits, first, margin, flags = [], [], [], []
-    i = 0
-    for mv in moves:
-        first.append(i)
-        if mv == 1:
-            bits.append(0); flags.append(long_ if r[i] > 1.6 else 0)
-            margin.append(abs(r[i] - BOUNDARY) * 4.0)
-            i += 1
-        elif mv == 2:
-            bits.append(1); flags.append(0)
-            margin.append(min(abs(r[i] - BOUNDARY), abs(r[i + 1] - BOUNDARY)) * 4.0)
-            i += 2
-        else:
-            bits.append(1); flags.append(lone); margin.append(0.0)
-            i += 1
-    first_a = np.asarray(first, np.int64)
-    return BitStream(np.asarray(bits, np.uint8), t[first_a], period[first_a], np.asarray(margin),
-                     np.asarray(flags, np.uint8), first_a, r_arr)
+    kinds.reverse()
+    widths = np.where(np.asarray(kinds, np.int8) == 2, 2, 1)
+    first = np.concatenate(([0], np.cumsum(widths)[:-1])).astype(np.int64)
+    return _assemble(t, first, kinds, r, period[first])
 
 
 def _recover_loop(times_s: np.ndarray, *, loop_gain: float = 0.25,
@@ -221,37 +220,32 @@ def _recover_loop(times_s: np.ndarray, *, loop_gain: float = 0.25,
     T = initial_period(d_arr) if ref is None else float(ref[0])
     # the loop runs over plain Python lists: one pass over the intervals, no numpy scalars
     d = d_arr.tolist()
-    bits, start, period, margin, flags, first = [], [], [], [], [], []
+    first, kind, period = [], [], []
     ratio = [0.0] * nb
-    lone, long_ = int(FLAG_LONE_HALF), int(FLAG_LONG)
     i = 0
     while i < nb:
         if ref is not None:
             T = ref[i]
-        r1 = d[i] / T
+        di = d[i]
+        r1 = di / T
         ratio[i] = r1
-        start.append(t[i]); period.append(T); first.append(i)
+        first.append(i)
+        period.append(T)
         if r1 >= BOUNDARY or i + 1 >= nb:
-            bits.append(0)
-            margin.append(abs(r1 - BOUNDARY) * 4.0)
-            flags.append(long_ if r1 > 1.6 else 0)
-            cell = d[i]
+            kind.append(1)
+            cell = di
             i += 1
         else:
             r2 = d[i + 1] / T
             ratio[i + 1] = r2
-            bits.append(1)
             if r2 >= BOUNDARY:
-                flags.append(lone)
-                margin.append(0.0)
-                cell = 2 * d[i]
+                kind.append(3)
+                cell = 2 * di
                 i += 1
             else:
-                flags.append(0)
-                margin.append(min(abs(r1 - BOUNDARY), abs(r2 - BOUNDARY)) * 4.0)
-                cell = d[i] + d[i + 1]
+                kind.append(2)
+                cell = di + d[i + 1]
                 i += 2
         if ref is None and cell < 1.6 * T:
             T += loop_gain * (cell - T)
-    return BitStream(np.asarray(bits, np.uint8), np.asarray(start), np.asarray(period), np.asarray(margin),
-                     np.asarray(flags, np.uint8), np.asarray(first, np.int64), np.asarray(ratio))
+    return _assemble(t, first, kind, np.asarray(ratio), np.asarray(period))
