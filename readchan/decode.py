@@ -174,6 +174,18 @@ def quiet_mask(n: int, rate_hz: float, segments: list[Segment], *, guard_s: floa
     return quiet
 
 
+def between_pulses_mask(n: int, rate_hz: float, tr: Transitions, *, guard: float = 0.3) -> np.ndarray:
+    """True for samples farther than ``guard`` × the median interval from every transition:
+    the baseline between pulses, where hum can be fitted when a capture has no quiet stretch."""
+    if len(tr) < 2:
+        return np.ones(n, bool)
+    w = int(guard * float(np.median(np.diff(tr.times_s))) * rate_hz) + 1
+    edges = np.zeros(n + 1, np.int64)
+    np.add.at(edges, np.clip(tr.index - w, 0, n), 1)
+    np.add.at(edges, np.clip(tr.index + w + 1, 0, n), -1)
+    return np.cumsum(edges[:-1]) == 0
+
+
 def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings, channel: int):
     """Head-signal front end: condition and detect; then refine with the hum fitted on the quiet
     stretches (or a fixed notch) taken out and a low-pass matched to the pulse rate, and detect
@@ -189,7 +201,10 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
     tr = detect_head(first.signal, rate_hz, threshold=settings.threshold)
     refined = False
     if settings.notch == "auto":
-        fit = fit_hum(cond.signal, rate_hz, quiet_mask(x.size, rate_hz, segment(tr)))
+        quiet = quiet_mask(x.size, rate_hz, segment(tr))
+        if np.count_nonzero(quiet) < 3 * rate_hz / 50.0:      # no quiet stretch: fit between pulses
+            quiet = between_pulses_mask(x.size, rate_hz, tr)
+        fit = fit_hum(cond.signal, rate_hz, quiet)
         if fit is not None:
             hum = fit.freq_hz
             cond = Conditioned(cond.signal - fit.waveform(x.size, rate_hz), rate_hz, cond.dc_offset, channel)

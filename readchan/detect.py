@@ -227,7 +227,7 @@ def auto_lowpass_hz(tr: Transitions, rate_hz: float, *, factor: float = 1.0) -> 
     return f if f < 0.4 * rate_hz else None
 
 
-def auto_highpass_hz(tr: Transitions, *, factor: float = 0.15) -> float | None:
+def auto_highpass_hz(tr: Transitions, *, factor: float = 0.3) -> float | None:
     """High-pass corner (Hz) matched to the pulse rate: ``factor`` / the 90th-percentile interval.
 
     F2F has no energy below half the bit rate at the slowest point of a swipe (all zeros:
