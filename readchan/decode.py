@@ -202,9 +202,14 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
     refined = False
     if settings.notch == "auto":
         quiet = quiet_mask(x.size, rate_hz, segment(tr))
-        if np.count_nonzero(quiet) < 3 * rate_hz / 50.0:      # no quiet stretch: fit between pulses
-            quiet = between_pulses_mask(x.size, rate_hz, tr)
-        fit = fit_hum(cond.signal, rate_hz, quiet)
+        level = 0.02
+        if np.count_nonzero(quiet) < 3 * rate_hz / 50.0:
+            # No quiet stretch: fit between pulses, mid-gap only.  Pulse tails leak the data's
+            # own pattern in there (a run of BCD zeros repeats at bit rate / 5, which can sit
+            # near 50 or 60 Hz), so only hum strong enough to matter (10 % of the peak) counts.
+            quiet = between_pulses_mask(x.size, rate_hz, tr, guard=0.4)
+            level = 0.1
+        fit = fit_hum(cond.signal, rate_hz, quiet, min_level=level)
         if fit is not None:
             hum = fit.freq_hz
             cond = Conditioned(cond.signal - fit.waveform(x.size, rate_hz), rate_hz, cond.dc_offset, channel)
