@@ -82,7 +82,7 @@ def baseline(y: np.ndarray, rate_hz: float, corner_hz: float) -> np.ndarray:
     For speed the low-pass runs on block means, one block per ≈ 1/(40·corner) s, and the result
     is interpolated back to every sample.  The block means still hold everything below ≈ 20×
     the corner, and the low-pass keeps only what is below the corner, so the result matches
-    the direct filter (to 0.1 % of a sinusoidal wander in a check on synthetic data).
+    the direct filter (within 0.5 % of a sinusoidal wander; tests/test_condition.py).
     """
     block = max(1, int(rate_hz / (40.0 * corner_hz)))
     nb = y.size // block
