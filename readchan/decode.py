@@ -217,8 +217,10 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
     f_lp = f_hp = None
     if settings.auto_band:
         f_lp = auto_lowpass_hz(tr, rate_hz) if cs.lowpass_hz is None else None
-        if f_lp is None and band is not None:
-            f_lp = 1.5 * band
+        if band is not None:
+            # never below the band the signal visibly occupies: narrow pulses on a long cell
+            # (track 2 at a slow swipe) reach well above 1 / half cell
+            f_lp = max(f_lp or 0.0, 1.5 * band)
         f_hp = auto_highpass_hz(tr)
         if f_hp is not None and (f_hp <= (cs.highpass_hz or 0.0) or f_hp >= 0.25 * rate_hz):
             f_hp = None

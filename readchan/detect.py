@@ -211,6 +211,19 @@ def _alternate(x, idx, sgn, amp, env, strong, threshold):
     return idx[cand[order]].astype(np.int64), envs[order], fl[order]
 
 
+def pulse_intervals(tr: Transitions) -> np.ndarray:
+    """Intervals (s) between neighbouring transitions that are both pulses of a recording:
+    |amplitude| at least 0.3 × the 90th percentile, so noise peaks in quiet stretches, which
+    the detector also returns, do not set the filters (intervals over 20 ms are gaps)."""
+    if len(tr) < 2:
+        return np.zeros(0)
+    a = np.abs(tr.amplitude)
+    strong = a >= 0.3 * np.percentile(a, 90)
+    d = np.diff(tr.times_s)
+    d = d[strong[1:] & strong[:-1]]
+    return d[(d > 0) & (d < 0.02)]
+
+
 def auto_lowpass_hz(tr: Transitions, rate_hz: float, *, factor: float = 1.0) -> float | None:
     """Low-pass corner (Hz) matched to the pulse rate: ``factor`` / the 10th-percentile interval.
 
@@ -219,8 +232,7 @@ def auto_lowpass_hz(tr: Transitions, rate_hz: float, *, factor: float = 1.0) -> 
     drops the noise above them (common practice).  None when there are too few transitions or
     the corner would sit near Nyquist anyway.
     """
-    d = np.diff(tr.times_s)
-    d = d[(d > 0) & (d < 0.02)]
+    d = pulse_intervals(tr)
     if d.size < 16:
         return None
     f = factor / float(np.percentile(d, 10))
@@ -237,8 +249,7 @@ def auto_highpass_hz(tr: Transitions, *, factor: float = 0.15) -> float | None:
     the faster speeds, baseline wander, AC-coupling droop (common practice; a corner at 0.3 ×
     was measured to break runs of BCD zeros at 10 cm/s).
     """
-    d = np.diff(tr.times_s)
-    d = d[(d > 0) & (d < 0.02)]
+    d = pulse_intervals(tr)
     if d.size < 16:
         return None
     return factor / float(np.percentile(d, 90))
