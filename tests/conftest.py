@@ -14,7 +14,7 @@ from readchan.render import reads_of
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 
-settings.register_profile("ci", max_examples=25, deadline=None,
+settings.register_profile("ci", max_examples=60, deadline=None,
                           suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 settings.register_profile("thorough", max_examples=300, deadline=None,
                           suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])

@@ -57,7 +57,7 @@ def hard_scenario(draw):
             _rate_for(speed, variation, density), draw(st.integers(0, 2**31)), sorted(hard))
 
 
-@settings(max_examples=12)
+@settings(max_examples=30)
 @given(hard_scenario())
 def test_hard_swipes_decode_to_the_exact_text_valid_and_in_the_right_direction(sc):
     track, text, speed, imp, pulse, rate, seed, _ = sc
