@@ -14,7 +14,7 @@ import numpy as np
 from readchan.capture import Capture
 from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum, refine, signal_band_hz
 from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, classify_kind, clipped_fraction,
-                             detect_head, detect_logic)
+                             detect_head, detect_logic, pulse_width_s)
 from readchan.errors import ParameterError
 from readchan.fields import CardFields, parse_fields
 from readchan.formats import KNOWN_FORMATS, TRACKS, CharFormat, TrackSpec
@@ -128,12 +128,25 @@ MIN_CLOCKING_ZEROS = 6
 zeros (ISO/IEC 7811-2), while a sentinel pattern found in noise almost never follows six."""
 
 
+LOWPASS_PER_WIDTH = 0.5
+"""The auto low-pass corner is at least this over the pulses' measured half-amplitude width."""
+
 CLIPPED_FRACTION = 0.005
 """Above this fraction of samples at the extremes a capture counts as clipped, and pulses are
 timed by the middle of their crests rather than by their (flattened) peaks."""
 
 MIN_REGULARITY = 0.75
 """Smallest :attr:`BitStream.regularity` of a stretch of transitions taken for a recording."""
+
+
+def suspect_bits(tr: Transitions, bs: BitStream) -> np.ndarray:
+    """Bits holding a transition the detector had to guess at (any ``FLAG_*`` of
+    :mod:`readchan.detect`), and the bit before each (the guess moves a cell boundary)."""
+    flagged = np.flatnonzero(tr.flags)
+    if flagged.size == 0 or len(bs) == 0:
+        return np.zeros(0, np.int64)
+    k = np.searchsorted(bs.first_transition, flagged, side="right") - 1
+    return np.unique(np.concatenate((k, k - 1)).clip(0, len(bs) - 1))
 
 
 def _clocked(bits: np.ndarray, fr: Frame, n: int) -> bool:
@@ -217,10 +230,13 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
     f_lp = f_hp = None
     if settings.auto_band:
         f_lp = auto_lowpass_hz(tr, rate_hz) if cs.lowpass_hz is None else None
-        if band is not None:
-            # never below the band the signal visibly occupies: narrow pulses on a long cell
-            # (track 2 at a slow swipe) reach well above 1 / half cell
-            f_lp = max(f_lp or 0.0, 1.5 * band)
+        if f_lp is None and band is not None:
+            f_lp = 1.5 * band
+        width = pulse_width_s(first.signal, tr) if f_lp is not None else None
+        if width is not None:
+            # never narrower than the pulses themselves: narrow pulses on a long cell (track 2
+            # at a slow swipe) reach well above 1 / half cell, and a corner below them rings
+            f_lp = max(f_lp, LOWPASS_PER_WIDTH / width)
         f_hp = auto_highpass_hz(tr)
         if f_hp is not None and (f_hp <= (cs.highpass_hz or 0.0) or f_hp >= 0.25 * rate_hz):
             f_hp = None
@@ -276,10 +292,11 @@ def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], setti
             continue
         recovery = None
         fmt = settings.fmt or next(f for f in KNOWN_FORMATS if f.name == fr.format)
+        suspects = suspect_bits(sub, bs)
         if fr.corrected:
-            fr = confirm_correction(fr, bs.bits, bs.margin, fmt)
+            fr = confirm_correction(fr, bs.bits, bs.margin, fmt, suspects)
         if not fr.valid and settings.recover:
-            recovery = recover(bs.bits, bs.margin, fr, fmt)
+            recovery = recover(bs.bits, bs.margin, fr, fmt, suspect_bits=suspects)
             if recovery.frame is not None:
                 fr = recovery.frame
         track = guess_track(fr.format, len(fr.text), channel, n_channels, settings.track)

@@ -224,6 +224,26 @@ def pulse_intervals(tr: Transitions) -> np.ndarray:
     return d[(d > 0) & (d < 0.02)]
 
 
+def pulse_width_s(x: np.ndarray, tr: Transitions, *, n: int = 200) -> float | None:
+    """Median half-amplitude width (s) of up to ``n`` of the strongest pulses of ``tr`` in ``x``:
+    the crossings of half of each peak on either side, to the sample."""
+    if len(tr) < 8:
+        return None
+    a = np.abs(tr.amplitude)
+    pick = np.argsort(a)[::-1][: min(n, len(tr))]
+    widths = []
+    for j in pick.tolist():
+        i = int(tr.index[j])
+        s = 1.0 if x[i] >= 0 else -1.0
+        half = 0.5 * s * x[i]
+        lo, hi = max(0, i - 4096), min(x.size, i + 4097)
+        below_l = np.flatnonzero(s * x[lo:i] < half)
+        below_r = np.flatnonzero(s * x[i:hi] < half)
+        if below_l.size and below_r.size:
+            widths.append((i + below_r[0]) - (lo + below_l[-1]) - 1)
+    return float(np.median(widths)) / tr.rate_hz if widths else None
+
+
 def auto_lowpass_hz(tr: Transitions, rate_hz: float, *, factor: float = 1.0) -> float | None:
     """Low-pass corner (Hz) matched to the pulse rate: ``factor`` / the 10th-percentile interval.
 

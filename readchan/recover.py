@@ -86,11 +86,27 @@ def least_confident(bits: np.ndarray, margin: np.ndarray, base: Frame, n: int) -
     return tuple(int(i) for i in order[:n])
 
 
-def confirm_correction(fr: Frame, bits: np.ndarray, margin: np.ndarray, fmt: CharFormat) -> Frame:
+def _suspects_elsewhere(fr: Frame, suspect_bits, rows: tuple[int, ...]) -> bool:
+    """True when a bit the detector had to guess at lies outside the characters ``rows``."""
+    if not len(suspect_bits):
+        return False
+    idx = np.asarray(fr.bit_index)
+    inside = set(idx[list(rows)].ravel().tolist()) if rows else set()
+    lo, hi = int(idx.min()), int(idx.max())
+    return any(lo <= b <= hi and b not in inside for b in np.asarray(suspect_bits).tolist())
+
+
+def confirm_correction(fr: Frame, bits: np.ndarray, margin: np.ndarray, fmt: CharFormat,
+                       suspect_bits=()) -> Frame:
     """Keep a single-character correction only if the bit it revised is among the
-    :data:`CORRECTION_RANK` least confident doubtful bits; else return the read uncorrected
-    and invalid (its characters as read)."""
-    if not fr.corrected or set(fr.revised_bits) <= set(least_confident(bits, margin, fr, CORRECTION_RANK)):
+    :data:`CORRECTION_RANK` least confident doubtful bits, and no bit the transition detector
+    had to guess at (``suspect_bits``: a rescued, dropped or missing pulse) lies in another
+    character of the frame — such a guess can change two bits of a character and keep its
+    parity; else return the read uncorrected and invalid (its characters as read)."""
+    if not fr.corrected:
+        return fr
+    if (set(fr.revised_bits) <= set(least_confident(bits, margin, fr, CORRECTION_RANK))
+            and not _suspects_elsewhere(fr, suspect_bits, fr.corrected)):
         return fr
     idx = np.asarray(fr.bit_index)
     weights = 1 << np.arange(fmt.data_bits)
@@ -107,7 +123,7 @@ def candidate_count(max_flips: int = MAX_FLIPS) -> int:
 
 
 def recover(bits: np.ndarray, margin: np.ndarray, base: Frame, fmt: CharFormat, *,
-            max_flips: int = MAX_FLIPS) -> Recovery:
+            max_flips: int = MAX_FLIPS, suspect_bits=()) -> Recovery:
     """Search for the unique valid reading near a failed ``base`` frame of ``bits``.
 
     Parameters
@@ -117,10 +133,13 @@ def recover(bits: np.ndarray, margin: np.ndarray, base: Frame, fmt: CharFormat, 
     base : the failed frame of ``bits``.
     fmt : its character format.
     max_flips : most bits revised together (see the module docstring).
+    suspect_bits : bits the transition detector had to guess at; none may lie outside the
+        failing character (see :func:`confirm_correction`).
     """
     searched = least_confident(bits, margin, base, max_flips + 1)
     fails = np.flatnonzero(~np.asarray(base.parity_ok))
-    if not base.complete or fails.size != 1 or fails[0] >= len(base.text):
+    if (not base.complete or fails.size != 1 or fails[0] >= len(base.text)
+            or _suspects_elsewhere(base, suspect_bits, (int(fails[0]),))):
         return Recovery(None, 0, 0, searched)
     char_bits = set(np.asarray(base.bit_index)[int(fails[0])].tolist())
     passing: dict[str, tuple[Frame, tuple[int, ...]]] = {}
