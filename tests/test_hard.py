@@ -202,3 +202,20 @@ def test_corrupted_captures_never_read_valid_with_wrong_text(case):
     result = decode_channel(x, res.rate_hz)
     wrong = [r.frame.text for r in result.reads if r.valid and r.frame.text != text]
     assert wrong == []
+
+
+def test_a_correction_is_not_believed_when_the_detector_guessed_at_a_pulse_elsewhere():
+    # a guessed pulse (rescued, dropped or missing) can change two bits of a character and keep
+    # its parity; the one parity failure then points at the wrong character
+    text = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"
+    bits, where = _damaged(text, 1, [7 * 10 + 2])
+    fmt = TRACKS[1].fmt
+    fr = frame(bits, fmt)
+    margin = np.ones(bits.size)
+    margin[where] = 0.1
+    elsewhere = [TRACKS[1].leading_zeros + 7 * 20 + 3]
+    assert confirm_correction(fr, bits, margin, fmt).valid
+    refused = confirm_correction(fr, bits, margin, fmt, suspect_bits=elsewhere)
+    assert not refused.valid and refused.corrected == ()
+    inside = [where[0] + 1]
+    assert confirm_correction(fr, bits, margin, fmt, suspect_bits=inside).valid
