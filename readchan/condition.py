@@ -91,16 +91,14 @@ def baseline(y: np.ndarray, rate_hz: float, corner_hz: float) -> np.ndarray:
         sos = sps.butter(2, corner_hz, btype="lowpass", fs=rate_hz, output="sos")
         return sps.sosfiltfilt(sos, y, padlen=min(y.size - 1, int(3 * rate_hz / corner_hz)))
     means = y[: nb * block].reshape(nb, block).mean(axis=1)
-    if y.size > nb * block:
-        means = np.append(means, y[nb * block:].mean())
     slow = sps.sosfiltfilt(sos, means, padlen=min(means.size - 1, 120))
-    # linear interpolation between block centres (a regular grid: no search needed)
-    pos = (np.arange(y.size, dtype=float) - 0.5 * (block - 1)) / block
-    np.clip(pos, 0.0, nb - 1.0, out=pos)
-    i0 = pos.astype(np.int64)
-    np.minimum(i0, nb - 2, out=i0)
-    pos -= i0
-    return slow[i0] + pos * (slow[i0 + 1] - slow[i0])
+    # back to every sample: the line through each block centre with the slope to the next
+    slope = np.diff(slow, append=slow[-1]) / block
+    offset = np.arange(block) - 0.5 * (block - 1)
+    out = np.empty(y.size)
+    out[: nb * block] = (slow[:, None] + slope[:, None] * offset).ravel()
+    out[nb * block:] = slow[-1]
+    return out
 
 
 def signal_band_hz(x: np.ndarray, rate_hz: float, *, ratio: float = 4.0) -> float | None:
