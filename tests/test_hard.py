@@ -150,13 +150,18 @@ def test_a_correction_that_revises_a_confident_bit_is_not_believed():
     assert not checked.valid and checked.corrected == ()
 
 
-def test_a_correction_of_a_doubtful_bit_is_kept():
+def _one_doubtful_error():
+    """A track-1 read with one flipped data bit (character 10), that bit doubted by the timing."""
     text = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"
     bits, where = _damaged(text, 1, [7 * 10 + 2])
     fmt = TRACKS[1].fmt
-    fr = frame(bits, fmt)
     margin = np.ones(bits.size)
     margin[where] = 0.1
+    return text, bits, where, fmt, frame(bits, fmt), margin
+
+
+def test_a_correction_of_a_doubtful_bit_is_kept():
+    text, bits, where, fmt, fr, margin = _one_doubtful_error()
     kept = confirm_correction(fr, bits, margin, fmt)
     assert kept.valid and kept.text == text and kept.revised_bits == tuple(where)
 
@@ -207,12 +212,7 @@ def test_corrupted_captures_never_read_valid_with_wrong_text(case):
 def test_a_correction_is_not_believed_when_the_detector_guessed_at_a_pulse_elsewhere():
     # a guessed pulse (rescued, dropped or missing) can change two bits of a character and keep
     # its parity; the one parity failure then points at the wrong character
-    text = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"
-    bits, where = _damaged(text, 1, [7 * 10 + 2])
-    fmt = TRACKS[1].fmt
-    fr = frame(bits, fmt)
-    margin = np.ones(bits.size)
-    margin[where] = 0.1
+    text, bits, where, fmt, fr, margin = _one_doubtful_error()
     elsewhere = [TRACKS[1].leading_zeros + 7 * 20 + 3]
     assert confirm_correction(fr, bits, margin, fmt).valid
     refused = confirm_correction(fr, bits, margin, fmt, suspect_bits=elsewhere)
