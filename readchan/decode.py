@@ -237,6 +237,8 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
             # never narrower than the pulses themselves: narrow pulses on a long cell (track 2
             # at a slow swipe) reach well above 1 / half cell, and a corner below them rings
             f_lp = max(f_lp, LOWPASS_PER_WIDTH / width)
+        if f_lp is not None and f_lp >= 0.4 * rate_hz:
+            f_lp = None             # pulses as narrow as the sampling: nothing to take away
         f_hp = auto_highpass_hz(tr)
         if f_hp is not None and (f_hp <= (cs.highpass_hz or 0.0) or f_hp >= 0.25 * rate_hz):
             f_hp = None

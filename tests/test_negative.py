@@ -41,3 +41,10 @@ def test_noise_hum_and_stray_pulses_never_give_a_valid_read(seed):
     x, rate = _noise_capture(kind, seed)
     result = decode_channel(x, rate)
     assert not any(r.valid for r in result.reads), [r.frame.text for r in result.reads]
+
+
+def test_stray_pulses_as_narrow_as_the_sampling_do_not_break_the_band_limits():
+    # seed 186: single-sample-wide pulses at 96 kHz once put the auto low-pass at Nyquist
+    x, rate = _noise_capture("pulses", 186)
+    result = decode_channel(x, rate)
+    assert not any(r.valid for r in result.reads)
