@@ -294,7 +294,8 @@ def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], setti
             continue
         recovery = None
         fmt = settings.fmt or next(f for f in KNOWN_FORMATS if f.name == fr.format)
-        suspects = suspect_bits(sub, bs)
+        # only a corrected or failed read needs to know where the detector guessed
+        suspects = suspect_bits(sub, bs) if fr.corrected or not fr.valid else ()
         if fr.corrected:
             fr = confirm_correction(fr, bs.bits, bs.margin, fmt, suspects)
         if not fr.valid and settings.recover:
