@@ -53,6 +53,11 @@ class PulseKind(str, Enum):
     lorentzian = "lorentzian"
 
 
+class PreampFamily(str, Enum):
+    butterworth = "butterworth"
+    bessel = "bessel"
+
+
 class Output(str, Enum):
     head = "head"
     flux = "flux"
@@ -152,7 +157,15 @@ def synth(
     hum_level: float = typer.Option(0.0, "--hum-level", help="Hum amplitude, fraction of the median peak."),
     wander_level: float = typer.Option(0.0, "--wander-level", help="2 Hz baseline wander, fraction of the median peak."),
     dc_offset: float = typer.Option(0.0, "--dc-offset", help="DC offset in full-scale units."),
-    highpass_hz: Optional[float] = typer.Option(None, "--ac-coupling-hz", help="First-order AC-coupling corner in Hz."),
+    ac_coupling_hz: Optional[float] = typer.Option(None, "--ac-coupling-hz", help="First-order AC-coupling corner in Hz."),
+    preamp_lowpass_hz: Optional[float] = typer.Option(None, "--preamp-lowpass-hz", help="Causal preamp low-pass corner (-3 dB) in Hz; renders oversampled."),
+    preamp_order: int = typer.Option(2, "--preamp-order", min=1, max=4, help="Preamp low-pass order, 1 to 4."),
+    preamp_family: PreampFamily = typer.Option(PreampFamily.butterworth, "--preamp-family", help="Preamp low-pass family."),
+    antialias: bool = typer.Option(True, "--antialias/--no-antialias", help="Decimate through a linear-phase anti-alias filter (sound card) or take samples as they are (scope)."),
+    quantize_bits: Optional[int] = typer.Option(None, "--quantize-bits", help="Quantise to N bits over full scale ±1."),
+    scope_volts_per_div: Optional[float] = typer.Option(None, "--scope-volts-per-div", help="Quantise as an 8-bit oscilloscope at this V/div."),
+    scope_offset_v: float = typer.Option(0.0, "--scope-offset-v", help="Oscilloscope screen-centre voltage."),
+    scope_divisions: int = typer.Option(8, "--scope-divisions", help="Vertical divisions of the oscilloscope's 256 levels (8 or 10)."),
     clip: Optional[float] = typer.Option(None, help="Clip at this fraction of the median peak."),
     invert: bool = typer.Option(False, help="Invert the polarity."),
     reverse: bool = typer.Option(False, help="Swipe the card backwards."),
@@ -166,7 +179,7 @@ def synth(
     """Synthesize a capture of known content and known impairments (one channel per track)."""
     from readchan.capture import write_capture
     from readchan.formats import parse_format
-    from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
+    from readchan.synth import FrontEnd, Impairments, SpeedProfile, SynthSpec, synthesize
     from readchan.synth.card import parse_bits, track_content
     from readchan.synth.head import KarlqvistPulse, LorentzianPulse
 
@@ -188,11 +201,15 @@ def synth(
             raise ParameterError("--pw50-um goes with --pulse lorentzian; the Karlqvist pulse takes --gap-um, --spacing-um, --transition-um")
         head = KarlqvistPulse(gap_um * 1e-6, spacing_um * 1e-6, transition_um * 1e-6)
     imp = Impairments(density_error=density_error, jitter=jitter, snr_db=snr_db, hum_hz=hum_hz, hum_level=hum_level,
-                      wander_level=wander_level, dc_offset=dc_offset, highpass_hz=highpass_hz, clip=clip,
+                      wander_level=wander_level, dc_offset=dc_offset, clip=clip,
                       invert=invert, reverse=reverse)
+    fe = FrontEnd(ac_coupling_hz=ac_coupling_hz, preamp_lowpass_hz=preamp_lowpass_hz, preamp_order=preamp_order,
+                  preamp_family=preamp_family.value, antialias=antialias, quantize_bits=quantize_bits,
+                  scope_volts_per_div=scope_volts_per_div, scope_offset_v=scope_offset_v,
+                  scope_divisions=scope_divisions)
     spec = SynthSpec(tracks=tuple(tracks), speed=SpeedProfile(speed_cm_s, profile.value, variation), pulse=head,
                      rate_hz=rate_hz, amplitude=amplitude, impairments=imp, swipes=swipes, gap_s=gap_s,
-                     output=signal.value, seed=seed)
+                     output=signal.value, seed=seed, front_end=fe)
     res = synthesize(spec)
     names = [t.label.replace(" ", "") or f"ch{i}" for i, t in enumerate(tracks)]
     path = write_capture(output, res.samples, res.rate_hz, kind=kind.value, force=force, channel_names=names)

@@ -13,9 +13,12 @@ pulse models and their sources):
    ``V(t) = A · v(t)/v0 · Σ_k s_k · p(x_head(t) − x_k)``.
    The flux output is the magnetisation square wave instead: what a coil must be driven
    with to inject a card-like signal into a reader's head.
-4. Impairments: white noise at a stated SNR (20·log10 of the median |peak| over the noise
-   RMS), mains hum, baseline wander, DC offset, an AC-coupling first-order high-pass,
-   clipping at a fraction of the median peak, polarity inversion.
+4. Impairments at the head: white noise at a stated SNR (20·log10 of the median |peak| over
+   the noise RMS in the band up to the output's Nyquist frequency), mains hum, baseline
+   wander, clipping at a fraction of the median peak, DC offset, polarity inversion.
+5. The reader's front end (:mod:`.chain`): AC coupling, a causal preamp low-pass, anti-alias
+   decimation and quantisation.  With a preamp low-pass, steps 1–5 run at ``oversample`` × the
+   output rate and the chain decimates to it.
 
 Everything is seeded: the same spec and seed give the same samples.
 """
@@ -29,6 +32,7 @@ import numpy as np
 from scipy import signal as sps
 
 from readchan.errors import ParameterError
+from readchan.synth.chain import FrontEnd, filter_chain, quantise
 from readchan.synth.f2f import f2f_positions
 from readchan.synth.head import KarlqvistPulse, LorentzianPulse, PulseModel
 from readchan.synth.speed import SpeedProfile
@@ -82,6 +86,7 @@ class Impairments:
     wander_hz, wander_level : baseline wander frequency (Hz) and amplitude (fraction of median peak).
     dc_offset : DC offset in output units (full scale for audio).
     highpass_hz : corner of a first-order AC-coupling high-pass (Hz); None for DC coupling.
+        The older spelling of ``FrontEnd.ac_coupling_hz``, used when that is not set.
     clip : clip the signal at this fraction of the median peak; None for no clipping.
     invert : invert the polarity.
     reverse : swipe the card backwards (the head meets the trailing end first).
@@ -140,6 +145,7 @@ class SynthSpec:
     gap_s : quiet time between swipes, in seconds.
     output : ``"head"`` (pulse voltage) or ``"flux"`` (magnetisation square wave).
     seed : random seed.
+    front_end : the reader's analog front end and converter (:class:`.chain.FrontEnd`).
     """
 
     tracks: tuple[TrackContent, ...]
@@ -154,6 +160,7 @@ class SynthSpec:
     gap_s: float = 0.25
     output: str = "head"
     seed: int = 0
+    front_end: FrontEnd = field(default_factory=FrontEnd)
 
     def __post_init__(self) -> None:
         if not self.tracks:
@@ -172,6 +179,17 @@ class SynthSpec:
                 raise ParameterError(f"{name} must be between 0 and 3600 s, was {v!r}")
         if self.output not in ("head", "flux"):
             raise ParameterError(f"output must be 'head' or 'flux', was {self.output!r}")
+        self.chain.check_rate(self.rate_hz)
+
+    @property
+    def chain(self) -> FrontEnd:
+        """The front end as rendered: ``front_end``, with ``Impairments.highpass_hz`` as the AC
+        coupling when the front end sets none."""
+        fe = self.front_end
+        if fe.ac_coupling_hz is None and self.impairments.highpass_hz is not None:
+            from dataclasses import replace
+            fe = replace(fe, ac_coupling_hz=self.impairments.highpass_hz)
+        return fe
 
 
 @dataclass(frozen=True)
@@ -188,7 +206,14 @@ class SynthResult:
     swipe_windows_s : per swipe, (start_s, end_s) of the card passing the head.
     pw50_m : isolated-pulse PW50 in metres.
     median_peak : per channel, median |V| at the transitions before noise (output units).
-    noise_rms : per channel, the RMS of the added white noise (output units).
+    noise_rms : per channel, the RMS of the added white noise in the band up to the output's
+        Nyquist frequency, at the head (output units).
+    output_median_peak : per channel, median |peak| of the noiseless pulses after the front
+        end (output units): the extreme of each pulse, found after the chain's delay.
+    output_noise_rms : per channel, RMS of the noise after the front end: the added white
+        noise as filtered by the chain, plus the quantisation noise step/√12 in quadrature.
+    chain_delay_s : the front end's low-frequency group delay (s): pulses leave the chain this
+        much later than ``transition_times_s``.
     """
 
     samples: np.ndarray
@@ -199,26 +224,41 @@ class SynthResult:
     pw50_m: float
     median_peak: tuple[float, ...]
     noise_rms: tuple[float, ...]
+    output_median_peak: tuple[float, ...] = ()
+    output_noise_rms: tuple[float, ...] = ()
+    chain_delay_s: float = 0.0
 
     @property
     def duration_s(self) -> float:
         return self.samples.shape[0] / self.rate_hz
+
+    @property
+    def output_snr_db(self) -> tuple[float, ...]:
+        """Per channel, the SNR of the capture as stored: 20·log10(output peak / output noise RMS)
+        (inf without noise)."""
+        return tuple(20 * math.log10(p / r) if r > 0 else math.inf
+                     for p, r in zip(self.output_median_peak, self.output_noise_rms))
 
 
 def synthesize(spec: SynthSpec) -> SynthResult:
     """Render ``spec`` into samples; see the module docstring for the model."""
     rng = np.random.default_rng(spec.seed)
     imp = spec.impairments
+    fe = spec.chain
+    k_os = fe.internal_factor
+    fs = spec.rate_hz * k_os                      # internal rate (the output rate without oversampling)
     lengths = [FIRST_TRANSITION_M + (np.asarray(t.bits).size + 1) * t.cell_m / (1 + imp.density_error)
                for t in spec.tracks]
     card_m = max(CARD_LENGTH_M, max(lengths) + FIRST_TRANSITION_M)
     # time for the whole card to pass, from the speed profile
     swipe_s = float(spec.speed.time_of_position(np.array([card_m]), card_m)[0])
     total_s = 2 * spec.lead_s + spec.swipes * swipe_s + (spec.swipes - 1) * spec.gap_s
-    n = int(math.ceil(total_s * spec.rate_hz)) + 1
-    if n > 500_000_000:
-        raise ParameterError(f"the capture would hold {n} samples; lower the rate or the number of swipes")
-    t = np.arange(n) / spec.rate_hz
+    n_out = int(math.ceil(total_s * spec.rate_hz)) + 1
+    n = (n_out - 1) * k_os + 1
+    if n * len(spec.tracks) > 500_000_000:
+        raise ParameterError(f"the capture would hold {n} internal samples; lower the rate, the oversampling "
+                             "or the number of swipes")
+    t = np.arange(n) / fs
     out = np.zeros((n, len(spec.tracks)))
     trans: list[list[np.ndarray]] = [[] for _ in spec.tracks]
     cells: list[list[np.ndarray]] = [[] for _ in spec.tracks]
@@ -256,9 +296,12 @@ def synthesize(spec: SynthSpec) -> SynthResult:
         median_peak = tuple(spec.amplitude for _ in spec.tracks)
     else:
         median_peak = tuple(
-            float(np.median(np.abs(out[np.clip(np.round(tk * spec.rate_hz).astype(int), 0, n - 1), ch])))
+            float(np.median(np.abs(out[np.clip(np.round(tk * fs).astype(int), 0, n - 1), ch])))
             for ch, tk in enumerate(transitions)
         )
+    chained = fe != FrontEnd()
+    clean = filter_chain(-out if imp.invert else out, fs, fe) if chained else None
+    noise = np.zeros_like(out) if chained else None
     noise_rms = []
     for ch in range(out.shape[1]):
         peak = median_peak[ch]
@@ -269,16 +312,26 @@ def synthesize(spec: SynthSpec) -> SynthResult:
         rms = 0.0
         if imp.snr_db is not None:
             rms = peak / 10 ** (imp.snr_db / 20)
-            out[:, ch] += rng.normal(0.0, rms, n)
+            # the same noise density at any internal rate: rms over the band up to rate_hz / 2
+            w = rng.normal(0.0, rms * math.sqrt(k_os), n)
+            out[:, ch] += w
+            if chained:
+                noise[:, ch] = w
         noise_rms.append(rms)
         if imp.clip is not None:
             out[:, ch] = np.clip(out[:, ch], -imp.clip * peak, imp.clip * peak)
     out += imp.dc_offset
-    if imp.highpass_hz is not None:
-        b, a = sps.butter(1, imp.highpass_hz, btype="highpass", fs=spec.rate_hz)
-        out = sps.lfilter(b, a, out, axis=0)
     if imp.invert:
         out = -out
+    if chained:
+        out = quantise(filter_chain(out, fs, fe), fe)
+        delay_s = fe.delay_s()
+        q2 = fe.quantisation_noise_rms ** 2
+        out_noise = tuple(float(math.sqrt(v + q2)) for v in np.var(filter_chain(noise, fs, fe), axis=0))
+        out_peak = tuple(_pulse_peaks(clean[:, ch], tk + delay_s, spec.rate_hz) if spec.output == "head"
+                         else float(np.median(np.abs(clean[:, ch]))) for ch, tk in enumerate(transitions))
+    else:
+        delay_s, out_noise, out_peak = 0.0, tuple(noise_rms), median_peak
     return SynthResult(
         samples=np.ascontiguousarray(out),
         rate_hz=float(spec.rate_hz),
@@ -288,7 +341,22 @@ def synthesize(spec: SynthSpec) -> SynthResult:
         pw50_m=float(spec.pulse.pw50_m),
         median_peak=median_peak,
         noise_rms=tuple(noise_rms),
+        output_median_peak=out_peak,
+        output_noise_rms=out_noise,
+        chain_delay_s=delay_s,
     )
+
+
+def _pulse_peaks(y: np.ndarray, times_s: np.ndarray, rate_hz: float) -> float:
+    """Median over pulses of max |y| between the midpoints to the neighbouring pulse times."""
+    if times_s.size == 0:
+        return 0.0
+    c = np.clip(np.round(times_s * rate_hz).astype(np.int64), 0, y.size - 1)
+    first = int(c[0]) - (int(c[1] - c[0]) // 2 if c.size > 1 else 1)
+    edges = np.concatenate(([max(0, first)], (c[1:] + c[:-1]) // 2))
+    edges = np.maximum.accumulate(np.clip(edges, 0, y.size - 1))
+    peaks = np.maximum.reduceat(np.abs(y), edges)
+    return float(np.median(peaks))
 
 
 def _superpose(x_head: np.ndarray, x_m: np.ndarray, sign: np.ndarray, pulse: PulseModel) -> np.ndarray:
@@ -308,6 +376,7 @@ def _superpose(x_head: np.ndarray, x_m: np.ndarray, sign: np.ndarray, pulse: Pul
 
 
 __all__ = [
+    "FrontEnd",
     "Impairments",
     "KarlqvistPulse",
     "LorentzianPulse",
