@@ -169,6 +169,7 @@ def synth(
     clip: Optional[float] = typer.Option(None, help="Clip at this fraction of the median peak."),
     invert: bool = typer.Option(False, help="Invert the polarity."),
     reverse: bool = typer.Option(False, help="Swipe the card backwards."),
+    edge_pulses: bool = typer.Option(False, "--edge-pulses", help="Stripe magnetised to the card's edges: a half-size pulse at each."),
     swipes: int = typer.Option(1, help="Number of swipes in the capture."),
     gap_s: float = typer.Option(0.25, "--gap-s", help="Quiet time between swipes in seconds."),
     signal: Output = typer.Option(Output.head, help="head: pickup voltage; flux: magnetisation square wave (coil drive)."),
@@ -202,7 +203,7 @@ def synth(
         head = KarlqvistPulse(gap_um * 1e-6, spacing_um * 1e-6, transition_um * 1e-6)
     imp = Impairments(density_error=density_error, jitter=jitter, snr_db=snr_db, hum_hz=hum_hz, hum_level=hum_level,
                       wander_level=wander_level, dc_offset=dc_offset, clip=clip,
-                      invert=invert, reverse=reverse)
+                      invert=invert, reverse=reverse, edge_pulses=edge_pulses)
     fe = FrontEnd(ac_coupling_hz=ac_coupling_hz, preamp_lowpass_hz=preamp_lowpass_hz, preamp_order=preamp_order,
                   preamp_family=preamp_family.value, antialias=antialias, quantize_bits=quantize_bits,
                   scope_volts_per_div=scope_volts_per_div, scope_offset_v=scope_offset_v,

@@ -20,7 +20,7 @@ from rich.text import Text
 
 from readchan.cli import (CAPTURES, CHANNEL, FORMAT, HIGHPASS, JSON, KIND, LOWPASS, NOTCH, RATE, TRACK, UNMASK, Kind,
                           _channels, _settings, app, err, out)
-from readchan.diagnose import ChannelReport, ReadReport
+from readchan.diagnose import ChannelReport, ReadReport, noise_source_text
 from readchan.errors import ParameterError
 from readchan.fields import mask_text
 
@@ -132,6 +132,12 @@ def channel_dict(ch: ChannelReport) -> dict:
         "noise_rms": _f(fe.noise_rms),
         "noise_from": fe.noise_from,
         "quiet_s": _f(fe.quiet_s),
+        "noise_used_s": _f(fe.noise_used_s),
+        "noise_pulses_excluded": fe.noise_pulses_excluded,
+        "noise_slow_excluded_s": _f(fe.noise_slow_excluded_s),
+        "noise_floored": fe.noise_floored,
+        "quant_step": _f(fe.quant_step),
+        "hum_from": fe.hum_from,
         "hum_hz": _f(fe.hum_hz),
         "mains_hz": _f(fe.mains_hz),
         "hum_amplitude": _f(fe.hum_amplitude),
@@ -176,6 +182,12 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
             "snr_db": _f(n.snr_db),
             "noise_from": fe.noise_from,
             "quiet_s": _f(fe.quiet_s),
+            "noise_used_s": _f(fe.noise_used_s),
+            "noise_pulses_excluded": fe.noise_pulses_excluded,
+            "noise_slow_excluded_s": _f(fe.noise_slow_excluded_s),
+            "noise_floored": fe.noise_floored,
+            "quant_step": _f(fe.quant_step),
+            "hum_from": fe.hum_from,
             "hum_hz": _f(fe.hum_hz),
             "mains_hz": _f(fe.mains_hz),
             "hum_amplitude": _f(fe.hum_amplitude),
@@ -262,9 +274,9 @@ def _rows(ch: ChannelReport, r: ReadReport) -> list[tuple[str, str, str]]:
     if n is not None:
         hum = "none found" if fe.hum_hz is None else (
             f"{fe.mains_hz:.0f} Hz mains (fit {fe.hum_hz:.2f} Hz), {fe.hum_amplitude:.3g} {u} = "
-            f"{100 * (n.hum_ratio or 0):.1f}% of |peak|")
+            f"{100 * (n.hum_ratio or 0):.1f}% of |peak| (fitted on {fe.hum_from})")
         rows += [
-            ("noise", "noise RMS", f"{n.noise_rms:.3g} {u} ({fe.noise_from}, {fe.quiet_s * 1e3:.0f} ms)"),
+            ("noise", "noise RMS", f"{n.noise_rms:.3g} {u} ({noise_source_text(fe)})"),
             ("", "SNR", _val(n.snr_db, ".1f", "dB")),
             ("", "mains hum", hum),
             ("", "DC offset / wander p-p", f"{fe.dc_offset:.3g} / {fe.wander_pp or 0:.3g} {u}"),

@@ -9,8 +9,7 @@ Measurement signal
 Detection runs on a signal low-passed to the pulse rate (:func:`readchan.decode.decode_channel`),
 which narrows the noise band and widens the pulses.  The quantities below are measured instead
 on the *wide-band* signal: the channel conditioned with the baseline high-pass only
-(``highpass_hz``, 20 Hz by default, zero-phase), with the mains hum fitted on the quiet stretches
-(:func:`readchan.condition.fit_hum`) subtracted.  Its noise is the noise at the capture's full
+(``highpass_hz``, 20 Hz by default, zero-phase), with the mains hum subtracted before it.  Its noise is the noise at the capture's full
 bandwidth, which is how the synthesizer states its SNR (:class:`readchan.synth.Impairments`).
 Peak values are that signal's samples at the detected peak positions (the detection filters
 are zero-phase, so the positions carry over).
@@ -21,12 +20,14 @@ Definitions (each is also in the docstring of the field that holds it)
   each transition, sign removed (capture units: full scale for audio, volts for tables).
 * asymmetry ``asymmetry_pct``: 100·(P − N)/(P + N), P and N the medians of the positive and the
   negative peaks' magnitudes (the usual read-head asymmetry figure; common practice).
-* noise RMS ``noise_rms``: RMS of the wide-band signal over the samples farther than 10 ms from
-  every stretch of transitions (:func:`readchan.decode.quiet_mask`); SNR ``snr_db`` =
+* noise RMS ``noise_rms``: plain RMS of the wide-band signal over the quiet samples (farther
+  than 10 ms from every stretch of transitions, :func:`readchan.decode.quiet_mask`) that are
+  left once isolated pulses and slow excursions are taken out (:func:`robust_noise`), raised to
+  the quantisation noise step/√12 when it measures below it; SNR ``snr_db`` =
   20·log10(median |peak| / noise RMS).
-* hum: fitted fundamental ``hum_hz`` (0.02 Hz grid), its nominal mains system ``mains_hz``
-  (50 or 60, the nearer), its peak amplitude ``hum_amplitude`` and ``hum_ratio`` = amplitude /
-  median |peak|.
+* hum: fitted on the quiet samples and between the pulses (:func:`_fit_hum_wide`): fundamental
+  ``hum_hz``, its nominal mains system ``mains_hz`` (50 or 60, the nearer), its peak amplitude
+  ``hum_amplitude`` and ``hum_ratio`` = amplitude / median |peak|.
 * DC offset ``dc_offset``: the median of the raw samples.  Baseline wander ``wander_pp``:
   peak-to-peak of what the baseline high-pass removes (raw − DC − wide-band signal), i.e. the
   content below ``highpass_hz``.
@@ -68,12 +69,12 @@ from scipy.ndimage import median_filter
 
 from readchan.capture import Capture
 from readchan.condition import ConditionSettings, HumFit, condition, fit_hum
-from readchan.decode import ChannelResult, DecodeSettings, Read, decode_channel, quiet_mask
+from readchan.decode import ChannelResult, DecodeSettings, Read, between_pulses_mask, decode_channel, quiet_mask
 from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK, noise_rms
 from readchan.timing import BOUNDARY, FLAG_LONE_HALF, FLAG_LONG
 
 __all__ = [
-    "LIMITS", "Amplitude", "format_check", "verdict_text", "Anomaly", "ChannelReport", "Check", "FrontEnd", "Limit", "Noise", "PulseShape",
+    "LIMITS", "Amplitude", "format_check", "noise_source_text", "robust_noise", "quantisation_step", "verdict_text", "Anomaly", "ChannelReport", "Check", "FrontEnd", "Limit", "Noise", "PulseShape",
     "ReadReport", "Timing", "inspect_capture", "inspect_channel",
 ]
 
@@ -159,8 +160,17 @@ class FrontEnd:
     noise_rms : wide-band noise RMS on the quiet samples (capture units); None for logic.
     noise_from : ``"quiet"`` (samples away from all transitions) or ``"blocks"`` (too little
         quiet time: the 10th percentile of 1 ms block RMS values, which reads low).
-    quiet_s : quiet time the noise and hum were measured on, in seconds.
+    quiet_s : quiet time (farther than 10 ms from every stretch of transitions), seconds.
     n_transitions : transitions detected on the channel.
+    noise_used_s : quiet time the noise RMS was taken over after isolated pulses and slow
+        excursions were left out (:func:`robust_noise`), seconds; None with ``"blocks"``.
+    noise_pulses_excluded : isolated pulses left out of the noise (card edges, strays).
+    noise_slow_excluded_s : quiet time left out of the noise as slow content, seconds.
+    hum_from : ``"quiet"`` or ``"quiet and between pulses"``: where the hum was fitted.
+    quant_step : the converter's step (capture units) when the samples lie on a grid, else None.
+    noise_floored : the measured noise was below the quantisation noise step/√12 (uniform-error
+        model, Widrow & Kollár, *Quantization Noise*, 2008) and was raised to it: quiet samples
+        that sit on one level hide the quantisation error every pulse carries.
     """
 
     channel: int
@@ -177,6 +187,12 @@ class FrontEnd:
     noise_from: str
     quiet_s: float
     n_transitions: int
+    noise_used_s: float | None = None
+    noise_pulses_excluded: int = 0
+    noise_slow_excluded_s: float = 0.0
+    hum_from: str | None = None
+    quant_step: float | None = None
+    noise_floored: bool = False
 
 
 @dataclass(frozen=True)
@@ -399,6 +415,26 @@ def format_check(c: Check) -> str:
             f"(limit {sign} {_num(lim.limit * lim.scale)}{unit}, headroom ×{head})")
 
 
+def noise_source_text(fe: FrontEnd) -> str:
+    """Where the noise figure came from, in words (the report's noise line)."""
+    if fe.noise_from == "blocks":
+        text = (f"{fe.quiet_s * 1e3:.0f} ms of quiet time is too little: 10th percentile of 1 ms block RMS "
+                "values, which reads low")
+    else:
+        text = f"quiet samples, {(fe.noise_used_s or 0.0) * 1e3:.0f} of {fe.quiet_s * 1e3:.0f} ms"
+        left = []
+        if fe.noise_pulses_excluded:
+            n = fe.noise_pulses_excluded
+            left.append(f"{n} isolated pulse{'s' if n != 1 else ''}")
+        if fe.noise_slow_excluded_s > 0:
+            left.append(f"{fe.noise_slow_excluded_s * 1e3:.0f} ms of slow baseline")
+        if left:
+            text += "; left out: " + ", ".join(left)
+    if fe.noise_floored:
+        text += f"; raised to the quantisation noise step/√12 (step {fe.quant_step:.3g} {fe.units})"
+    return text
+
+
 def verdict_text(checks: tuple[Check, ...]) -> str:
     """The verdict line of a read from its checks (see :class:`ReadReport`)."""
     if not checks:
@@ -478,14 +514,11 @@ def inspect_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),
 def _front_end(x, rate_hz, result, quiet, highpass_hz, units):
     cs = ConditionSettings(highpass_hz=highpass_hz or None)
     cond = condition(x, rate_hz, cs, channel=result.channel)
-    # The zero-phase high-pass rings at the capture's ends when hum is present (its padding
-    # does not continue a sinusoid), so the hum is fitted away from the ends, subtracted from
-    # the raw samples, and the high-pass run again on what is left.
-    edge = int(min(EDGE_S, 0.25 * x.size / rate_hz) * rate_hz)
-    inner = quiet.copy()
-    inner[:edge] = False
-    inner[x.size - edge:] = False
-    hum: HumFit | None = fit_hum(cond.signal, rate_hz, inner if inner.sum() >= 0.5 * quiet.sum() else quiet)
+    tr = result.transitions
+    # Hum is fitted wherever the baseline can be seen: the quiet stretches and, inside the
+    # swipes, the middle of the gaps between pulses (see _fit_hum_wide).
+    between = between_pulses_mask(x.size, rate_hz, tr, guard=0.4) if len(tr) >= 2 else np.ones(x.size, bool)
+    hum, hum_from = _fit_hum_wide(x, cond, rate_hz, quiet, between, highpass_hz, result.channel)
     if hum is not None:
         cond = condition(x - hum.waveform(x.size, rate_hz), rate_hz, cs, channel=result.channel)
     w = cond.signal
@@ -493,16 +526,214 @@ def _front_end(x, rate_hz, result, quiet, highpass_hz, units):
     if hum is not None:
         wander = float(np.ptp((x - hum.waveform(x.size, rate_hz) - cond.dc_offset) - w))
     quiet_s = float(quiet.sum()) / rate_hz
-    if quiet_s >= MIN_QUIET_S:
-        q = w[quiet]
-        noise, how = float(np.sqrt(np.mean((q - q.mean()) ** 2))), "quiet"
+    cell_s = float(np.median(np.diff(tr.times_s))) if len(tr) >= 2 else 1e-3
+    est = robust_noise(w, rate_hz, quiet, cell_s=cell_s) if quiet_s >= MIN_QUIET_S else None
+    if est is not None and est.used_s >= MIN_QUIET_S:
+        noise, how = est.rms, "quiet"
     else:
         noise, how = noise_rms(w, rate_hz), "blocks"
+        est = None
+    step = quantisation_step(x)
+    floored = step is not None and noise < step / math.sqrt(12.0)
+    if floored:
+        noise = step / math.sqrt(12.0)
     mains = None if hum is None else (50.0 if abs(hum.freq_hz - 50.0) < abs(hum.freq_hz - 60.0) else 60.0)
     fe = FrontEnd(result.channel, "head", units, rate_hz, x.size / rate_hz, cond.dc_offset, wander,
                   None if hum is None else hum.freq_hz, mains, None if hum is None else hum.amplitude,
-                  noise, how, quiet_s, len(result.transitions))
+                  noise, how, quiet_s, len(tr),
+                  noise_used_s=None if est is None else est.used_s,
+                  noise_pulses_excluded=0 if est is None else est.pulses_excluded,
+                  noise_slow_excluded_s=0.0 if est is None else est.slow_excluded_s,
+                  hum_from=hum_from, quant_step=step, noise_floored=floored)
     return fe, np.ascontiguousarray(w)
+
+
+def quantisation_step(x: np.ndarray) -> float | None:
+    """The converter's step when the samples lie on a uniform grid (a 16-bit WAV, an 8-bit
+    scope export), else None.  The step is the smallest difference between distinct values,
+    accepted when 99 % of the differences are whole multiples of it (within 1 %)."""
+    sub = np.asarray(x[:: max(1, x.size // 200_000)], float)
+    u = np.unique(sub)
+    if u.size < 2 or u.size > max(16, sub.size // 4):
+        return None
+    d = np.diff(u)
+    q = float(d.min())
+    if not q > 0:
+        return None
+    k = d / q
+    if np.mean(np.abs(k - np.round(k)) < 0.01) < 0.99:
+        return None
+    return q
+
+
+@dataclass(frozen=True)
+class NoiseEstimate:
+    """What :func:`robust_noise` measured.
+
+    Attributes
+    ----------
+    rms : noise RMS (capture units).
+    used_s : time the RMS was taken over, seconds.
+    pulses_excluded : isolated pulses (card edges, stray detections) left out.
+    slow_excluded_s : time left out for slow excursions (AC-coupling recovery, residual
+        wander), seconds.
+    """
+
+    rms: float
+    used_s: float
+    pulses_excluded: int
+    slow_excluded_s: float
+
+
+PULSE_SIGMA = 5.0
+"""A quiet sample beyond this many robust σ is part of a pulse, not noise (Gaussian noise
+exceeds 5σ in 6·10⁻⁷ of samples)."""
+
+SLOW_SIGMA = 4.0
+"""A smoothed quiet sample beyond this many robust σ of the smoothed noise is slow content."""
+
+PULSE_REACH_CELLS = 4.0
+"""Samples within this many typical intervals of an isolated pulse are left out of the noise."""
+
+
+def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: float = 1e-3) -> NoiseEstimate | None:
+    """Noise RMS on the quiet samples of ``w`` that isolated pulses and slow content cannot move.
+
+    1. A robust scale σ₀ = 1.4826·MAD of the quiet samples (the normal-consistent median
+       absolute deviation; Rousseeuw & Croux, JASA 88, 1993): a few pulses do not move it.
+    2. Samples within ``PULSE_REACH_CELLS`` typical intervals (``cell_s``) of a quiet sample
+       beyond ``PULSE_SIGMA``·σ₀ are left out (card-edge pulses, stray detections).
+    3. The rest is smoothed by a moving average over max(1 ms, 4 intervals); where the smoothed
+       signal leaves ±``SLOW_SIGMA`` robust σ of itself (an AC-coupling recovery after a
+       pulse, wander the baseline high-pass did not take), samples are left out too.
+    4. The noise is the plain RMS of what is left, so every kind of noise counts at its full
+       power (quantisation noise included: it is not Gaussian, and a MAD would misjudge it).
+
+    Returns None when fewer than 64 samples are left.
+    """
+    from scipy.ndimage import binary_dilation, uniform_filter1d
+
+    q = np.asarray(quiet, bool)
+    if q.sum() < 64:
+        return None
+    vals = w[q]
+    s0 = 1.4826 * float(np.median(np.abs(vals - np.median(vals))))
+    if not s0 > 0:
+        s0 = float(np.std(vals))
+    if not s0 > 0:
+        return NoiseEstimate(0.0, float(q.sum()) / rate_hz, 0, 0.0)
+    reach = max(1, int(PULSE_REACH_CELLS * cell_s * rate_hz))
+    hot = q & (np.abs(w) > PULSE_SIGMA * s0)
+    n_pulses = 0
+    if hot.any():
+        # one pulse per cluster of hot samples closer than the reach
+        hi = np.flatnonzero(hot)
+        n_pulses = int(1 + np.count_nonzero(np.diff(hi) > reach))
+        hot = binary_dilation(hot, np.ones(2 * reach + 1, bool))
+    keep = q & ~hot
+    m = max(8, int(max(1e-3, 4 * cell_s) * rate_hz))
+    smooth = uniform_filter1d(np.where(keep, w, 0.0), m, mode="constant")
+    cnt = uniform_filter1d(keep.astype(float), m, mode="constant")
+    full = keep & (cnt > 0.999)
+    slow = np.zeros_like(keep)
+    if full.sum() >= 64:
+        sm = smooth[full]
+        s1 = 1.4826 * float(np.median(np.abs(sm - np.median(sm))))
+        if s1 > 0:
+            slow = full & (np.abs(smooth - np.median(sm)) > SLOW_SIGMA * s1)
+            if slow.any():
+                slow = binary_dilation(slow, np.ones(2 * m + 1, bool)) & keep
+    use = keep & ~slow
+    if use.sum() < 64:
+        return None
+    u = w[use]
+    return NoiseEstimate(float(np.sqrt(np.mean((u - u.mean()) ** 2))), float(use.sum()) / rate_hz, n_pulses,
+                         float(slow.sum()) / rate_hz)
+
+
+def _hp_gain(f_hz: np.ndarray, corner_hz: float | None) -> np.ndarray:
+    """Gain of the zero-phase baseline high-pass (2nd-order Butterworth run both ways):
+    1 − 1/(1 + (f/fc)⁴) = 1/(1 + (fc/f)⁴) (Butterworth magnitude |H|² = 1/(1 + (f/fc)^2n))."""
+    f = np.asarray(f_hz, float)
+    return np.ones_like(f) if not corner_hz else 1.0 / (1.0 + (corner_hz / f) ** 4)
+
+
+def _fit_hum_wide(x, cond, rate_hz, quiet, between, highpass_hz, channel):
+    """Mains hum fitted on every sample where the baseline shows: the quiet stretches, and the
+    middle of the gaps between pulses (adjacent pulses alternate in sign, so their tails
+    largely cancel there).  Returns (HumFit or None, where it was fitted).
+
+    Two passes: the first on the high-passed signal away from the capture's ends (the
+    zero-phase high-pass rings there while hum is in the signal), its coefficients divided by
+    the high-pass gain at each harmonic (:func:`_hp_gain`); the second, a correction fitted on
+    the signal high-passed after the first hum was taken out (no ringing left, so every sample
+    counts), with the frequency refined between grid points by a parabola through the
+    residuals (the 0.02 Hz grid alone leaves a phase drift that reads as noise).
+    """
+    n = x.size
+    edge = int(min(EDGE_S, 0.25 * n / rate_hz) * rate_hz)
+    where = quiet | between
+    n_quiet = int(quiet.sum())
+    inner = where.copy()
+    inner[:edge] = False
+    inner[n - edge:] = False
+    level = 0.02 if n_quiet >= 3 * rate_hz / 50.0 else 0.05
+    first = fit_hum(cond.signal, rate_hz, inner if inner.sum() >= 0.5 * where.sum() else where, min_level=level)
+    if first is None:
+        return None, None
+    hum_from = "quiet" if int((where & ~quiet).sum()) < 0.1 * int(where.sum()) else "quiet and between pulses"
+    hum = _with_gain(first, 1.0 / _hp_gain(_harmonic_hz(first.freq_hz), highpass_hz))
+    cs = ConditionSettings(highpass_hz=highpass_hz or None)
+    idx = np.flatnonzero(where)
+    idx = idx[:: max(1, idx.size // 20000)]
+    for _ in range(HUM_PASSES):
+        # high-pass with the hum taken out (no ringing), then the hum put back as the
+        # high-pass passes a steady sinusoid: the high-passed capture without the end ringing
+        y = condition(x - hum.waveform(n, rate_hz), rate_hz, cs, channel=channel).signal
+        g = _hp_gain(_harmonic_hz(hum.freq_hz), highpass_hz)
+        target = y[idx] + _with_gain(hum, g).waveform(n, rate_hz)[idx]
+        hum = _refine_hum(idx / rate_hz, target - target.mean(), hum.freq_hz, highpass_hz)
+    return hum, hum_from
+
+
+HUM_PASSES = 2
+"""Passes of the hum refinement (the second changes the frequency by well under 0.01 Hz)."""
+
+
+def _harmonic_hz(f_hz: float) -> np.ndarray:
+    """Frequencies of the hum basis columns (cos, sin for harmonics 1..3)."""
+    return f_hz * np.repeat([1.0, 2.0, 3.0], 2)
+
+
+def _with_gain(h: HumFit, gain: np.ndarray) -> HumFit:
+    c = h.coef * gain
+    return HumFit(h.freq_hz, float(math.hypot(c[0], c[1])), c, h.residual_rms)
+
+
+def _refine_hum(t: np.ndarray, target: np.ndarray, f0: float, highpass_hz) -> HumFit:
+    """Least-squares hum (fundamental and harmonics 2, 3) on the high-passed samples
+    ``target`` at times ``t``, the frequency searched on a 0.01 Hz grid within ±0.1 Hz of
+    ``f0`` and then refined to the vertex of the parabola through the three best residuals;
+    the coefficients are divided by the high-pass gain (:func:`_hp_gain`)."""
+    from readchan.condition import _hum_basis
+
+    def rss(f):
+        A = _hum_basis(t, f)
+        coef, *_ = np.linalg.lstsq(A, target, rcond=None)
+        return float(np.sum((target - A @ coef) ** 2)), coef
+
+    df = 0.01
+    grid = f0 + df * np.arange(-10, 11)
+    res = np.array([rss(f)[0] for f in grid])
+    k = int(np.clip(np.argmin(res), 1, grid.size - 2))
+    rm, r0, rp = res[k - 1:k + 2]
+    den = rm - 2 * r0 + rp
+    f = float(grid[k] + (0.5 * df * (rm - rp) / den if den > 0 else 0.0))
+    r, coef = rss(f)
+    if r > r0:
+        f, (r, coef) = float(grid[k]), rss(float(grid[k]))
+    sigma = math.sqrt(r / max(t.size - 6, 1))
+    return _with_gain(HumFit(f, 0.0, coef, sigma), 1.0 / _hp_gain(_harmonic_hz(f), highpass_hz))
 
 
 def _clipped(x: np.ndarray) -> np.ndarray:

@@ -90,6 +90,9 @@ class Impairments:
     clip : clip the signal at this fraction of the median peak; None for no clipping.
     invert : invert the polarity.
     reverse : swipe the card backwards (the head meets the trailing end first).
+    edge_pulses : the stripe is magnetised up to the card's edges, so each edge, where the
+        magnetisation steps between zero and ±Mr (half a full transition's 2·Mr), gives an
+        isolated pulse of half the size (superposition of the isolated-pulse response).
     """
 
     density_error: float = 0.0
@@ -104,6 +107,7 @@ class Impairments:
     clip: float | None = None
     invert: bool = False
     reverse: bool = False
+    edge_pulses: bool = False
 
     def __post_init__(self) -> None:
         checks = {
@@ -288,6 +292,8 @@ def synthesize(spec: SynthSpec) -> SynthResult:
             if imp.reverse:
                 sign = -sign
             out[i0:i1, ch] += spec.amplitude * v_rel * _superpose(x_head, x, sign, spec.pulse)
+            if imp.edge_pulses:
+                _add_edge_pulses(out[:, ch], t, tg, xg, card_m, sign, spec)
     transitions = tuple(np.concatenate(tr) for tr in trans)
     if spec.output == "flux":
         for ch, tk in enumerate(transitions):
@@ -357,6 +363,25 @@ def _pulse_peaks(y: np.ndarray, times_s: np.ndarray, rate_hz: float) -> float:
     edges = np.maximum.accumulate(np.clip(edges, 0, y.size - 1))
     peaks = np.maximum.reduceat(np.abs(y), edges)
     return float(np.median(peaks))
+
+
+def _add_edge_pulses(y: np.ndarray, t: np.ndarray, tg: np.ndarray, xg: np.ndarray,
+                     card_m: float, sign: np.ndarray, spec: SynthSpec) -> None:
+    """Add the two card-edge pulses of one swipe to ``y`` in place.
+
+    Before the first transition the stripe holds −s₀·Mr, after the last +s_last·Mr (s the
+    transitions' signs, a transition stepping 2·Mr); at the edges it steps from and to zero,
+    i.e. −½·s₀ and −½·s_last of a full transition.  Each pulse is rendered at the speed the
+    edge passes the head, the head position continued beyond the card in a straight line.
+    """
+    v_ref = spec.reference_cm_s or spec.speed.mean_cm_s
+    reach_m = 40.0 * spec.pulse.pw50_m
+    for x_e, s_e in ((0.0, -0.5 * sign[0]), (card_m, -0.5 * sign[-1])):
+        v_cm_s = float(spec.speed.speed_cm_s(np.array([x_e / card_m]))[0])
+        t_e = float(np.interp(x_e, xg, tg))
+        a, b = np.searchsorted(t, [t_e - reach_m / (v_cm_s / 100), t_e + reach_m / (v_cm_s / 100)])
+        dx = (t[a:b] - t_e) * v_cm_s / 100
+        y[a:b] += spec.amplitude * (v_cm_s / v_ref) * s_e * spec.pulse.shape(dx)
 
 
 def _superpose(x_head: np.ndarray, x_m: np.ndarray, sign: np.ndarray, pulse: PulseModel) -> np.ndarray:
