@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import random
 import sys
 
 import pytest
@@ -14,11 +15,53 @@ from readchan.render import reads_of
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 
-settings.register_profile("ci", max_examples=60, deadline=None,
-                          suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
-settings.register_profile("thorough", max_examples=300, deadline=None,
-                          suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
-settings.load_profile(os.environ.get("READCHAN_HYPOTHESIS", "ci"))
+# Hypothesis profiles (README, "Tests"):
+# * ``ci`` (the default, what ``python -m pytest -q`` and .ci/run use): derandomised, so every
+#   test draws the same examples on every run (its seed is fixed by the test itself), and no
+#   example database, so nothing a previous run saved changes what this one draws.
+# * ``thorough`` (``READCHAN_HYPOTHESIS=thorough``, for local runs): five times the examples,
+#   a fresh random seed per session (``READCHAN_HYPOTHESIS_SEED=N`` repeats one) and the local
+#   example database.  A failure it finds is pinned in the test as an explicit ``@example``.
+# The profile and seed are printed in the pytest header (at the end of the run with -q).
+_COMMON = dict(deadline=None, print_blob=True,
+               suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+settings.register_profile("ci", max_examples=60, derandomize=True, database=None, **_COMMON)
+settings.register_profile("thorough", max_examples=300, derandomize=False, **_COMMON)
+PROFILE = os.environ.get("READCHAN_HYPOTHESIS", "ci")
+if PROFILE not in ("ci", "thorough"):
+    raise pytest.UsageError(f"READCHAN_HYPOTHESIS must be ci or thorough, was {PROFILE!r}")
+settings.load_profile(PROFILE)
+SEED: int | None = None
+if PROFILE == "thorough":
+    _given_seed = os.environ.get("READCHAN_HYPOTHESIS_SEED")
+    SEED = int(_given_seed) if _given_seed else random.SystemRandom().randrange(2 ** 32)
+
+
+@pytest.hookimpl(tryfirst=True)
+def pytest_configure(config):
+    # hypothesis's own option --hypothesis-seed forces one seed for every test; fill it in
+    # (before its plugin reads it) unless it was given on the command line
+    if SEED is not None and getattr(config.option, "hypothesis_seed", None) is None:
+        config.option.hypothesis_seed = str(SEED)
+
+
+def pytest_report_header(config):
+    return _hypothesis_line(config)
+
+
+def pytest_terminal_summary(terminalreporter, exitstatus, config):
+    if config.option.verbose < 0:          # -q prints no header: say it at the end instead
+        terminalreporter.write_line(_hypothesis_line(config))
+
+
+def _hypothesis_line(config) -> str:
+    if PROFILE == "ci":
+        return (f"hypothesis: profile 'ci', {settings().max_examples} examples, derandomize=True "
+                f"(each test's seed fixed by the test), database off; READCHAN_HYPOTHESIS=thorough "
+                f"for the local profile")
+    seed = getattr(config.option, "hypothesis_seed", None) or SEED
+    return (f"hypothesis: profile 'thorough', {settings().max_examples} examples, seed {seed} "
+            f"(repeat with READCHAN_HYPOTHESIS=thorough READCHAN_HYPOTHESIS_SEED={seed})")
 
 
 def run_cli(monkeypatch, capsys, *args):

@@ -297,15 +297,15 @@ def test_latin1_text_loads(tmp_path):
     assert load_capture(path).n_samples == 40
 
 
-def test_large_csv_parses_at_least_a_million_rows_per_second(tmp_path):
-    import time
-    n = 1_000_000
-    path = write_capture(tmp_path / "big.csv", tone(n)[:, 0], 1e6, kind="csv")
-    start = time.perf_counter()
+def test_large_csv_loads_every_row_in_order(tmp_path):
+    # the parsing speed is measured by scripts/bench_capture.py, not here (no clock in tests)
+    n = 200_000
+    values = tone(n)[:, 0]
+    path = write_capture(tmp_path / "big.csv", values, 1e6, kind="csv")
     cap = load_capture(path)
-    elapsed = time.perf_counter() - start
     assert cap.n_samples == n
-    assert elapsed < 1.0
+    assert cap.rate_hz == pytest.approx(1e6, rel=1e-9)
+    np.testing.assert_allclose(cap.channel(0), values, rtol=1e-8, atol=1e-9)
 
 
 # --------------------------------------------------------------------------- bad input
