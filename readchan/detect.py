@@ -7,7 +7,9 @@ The detector
 1. finds candidate peaks of both polarities with ``scipy.signal.find_peaks`` above a floor set
    from the noise (the RMS of the quietest stretches) and from the signal's own size;
 2. keeps an amplitude envelope that follows the local pulse amplitude, which rises and falls
-   with swipe speed (a running percentile over neighbouring candidates); a candidate counts
+   with swipe speed (a running percentile over neighbouring candidates, each first raised to
+   the largest of its close neighbours, so that the ringing lobes a band-limited front end
+   leaves between pulses cannot drag it down); a candidate counts
    when it exceeds ``threshold × envelope``;
 3. applies the alternation rule: two accepted candidates of the same polarity in a row mean
    either a noise peak (the smaller one, close to the other, is dropped and flagged ``EXTRA``)
@@ -26,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy import signal as sps
-from scipy.ndimage import median_filter, percentile_filter
+from scipy.ndimage import maximum_filter1d, median_filter, percentile_filter
 
 FLAG_EXTRA = np.uint8(1)
 """A same-polarity neighbour of this transition was dropped as a noise peak."""
@@ -122,9 +124,14 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     Candidates are *lobes*: stretches between crossings of ± half the floor (hysteresis), one
     candidate at each lobe's extreme, so noise ripple on a pulse's crest is never a second
     pulse and candidates alternate in polarity by construction.  The local envelope at a
-    candidate is the 75th percentile of |peak| over the ``window`` candidates around it
-    (``scipy.ndimage.percentile_filter``), so it follows the amplitude as it rises and falls
-    with swipe speed without a per-sample loop.  A candidate is a pulse when it exceeds
+    candidate is the 75th percentile, over the ``window`` candidates around it
+    (``scipy.ndimage.percentile_filter``), of the largest |peak| among each candidate and its
+    two neighbours on either side (``maximum_filter1d``, size 5), so it follows the amplitude as
+    it rises and falls with swipe speed without a per-sample loop.  The maximum first matters on
+    band-limited captures: a causal preamp low-pass (and the decoder's own low-pass) leaves small
+    ringing lobes after every pulse, up to four between two pulses, which as candidates would
+    outnumber the pulses and pull a plain percentile down to their own level, and then pass
+    the threshold as pulses themselves.  A candidate is a pulse when it exceeds
     ``threshold × envelope``; where two pulses of one polarity then follow each other, the
     alternation rule is resolved one case at a time (the only loop, over those cases).
     """
@@ -139,7 +146,8 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     amp = np.abs(x[idx])
     if idx.size == 0:
         return _empty("head", rate_hz, sigma)
-    env = percentile_filter(amp, 75, size=min(window, idx.size), mode="nearest")
+    env = percentile_filter(maximum_filter1d(amp, size=min(5, idx.size), mode="nearest"), 75,
+                            size=min(window, idx.size), mode="nearest")
     strong = amp >= threshold * env
     idx, env, flags = _alternate(x, idx, sgn, amp, env, strong, threshold)
     times = (level_midpoint_times(x, idx) if timing == "midpoint" else _parabolic_times(x, idx)) / rate_hz
@@ -226,7 +234,8 @@ def pulse_intervals(tr: Transitions) -> np.ndarray:
 
 def pulse_width_s(x: np.ndarray, tr: Transitions, *, n: int = 200) -> float | None:
     """Median half-amplitude width (s) of up to ``n`` of the strongest pulses of ``tr`` in ``x``:
-    the crossings of half of each peak on either side, to the sample."""
+    the crossings of half of each peak on either side, linearly interpolated between samples
+    (a pulse two or three samples wide is otherwise measured ±1 sample, ±30 %)."""
     if len(tr) < 8:
         return None
     a = np.abs(tr.amplitude)
@@ -240,7 +249,13 @@ def pulse_width_s(x: np.ndarray, tr: Transitions, *, n: int = 200) -> float | No
         below_l = np.flatnonzero(s * x[lo:i] < half)
         below_r = np.flatnonzero(s * x[i:hi] < half)
         if below_l.size and below_r.size:
-            widths.append((i + below_r[0]) - (lo + below_l[-1]) - 1)
+            a0 = lo + int(below_l[-1])                 # last sample below half, left of the peak
+            b0 = i + int(below_r[0])                   # first sample below half, right of it
+            ya, ya1 = s * x[a0], s * x[a0 + 1]
+            yb0, yb = s * x[b0 - 1], s * x[b0]
+            left = a0 + (half - ya) / (ya1 - ya) if ya1 != ya else a0 + 0.5
+            right = b0 - 1 + (yb0 - half) / (yb0 - yb) if yb0 != yb else b0 - 0.5
+            widths.append(right - left)
     return float(np.median(widths)) / tr.rate_hz if widths else None
 
 
