@@ -1,0 +1,214 @@
+"""Biphase-mark line code for tape: bits ↔ transition positions, and transition times → bits.
+
+Input (decode): a tape signal (line level or raw head), or transition times in seconds.
+Output: :class:`TapeBits` – bits in capture order with per-bit start times, periods and
+margins, one run per stretch of continuous signal.
+
+Biphase mark has a transition at every bit-cell boundary and one more mid-cell for a 1: the
+same modulation as F2F on a card (ISO/IEC 7811-2; SMPTE ST 12-1 for LTC).  The cell decisions
+are those of :func:`readchan.timing.recover_bits` (the Viterbi parse of intervals against a
+bit-period trace).  What is tape-specific is the period trace:
+
+* Tape plays from 0.1× to 10× nominal, with the speed changing during the capture, and a
+  frame of timecode has no run of clocking zeros to learn the period from.  The trace is
+  anchored where two neighbouring intervals differ by a factor of two: a full cell next to a
+  half cell (a 0 next to a 1), where the longer one *is* the bit period.  Every LTC frame holds
+  such pairs (its sync word 0011 1111 1111 1101 has three), so anchors occur at least three
+  times per frame at any speed.  The anchors' periods are median-filtered over 9 anchors and
+  interpolated in between.  A steady tone or pure noise gives no anchors, hence no bits.
+* Biphase mark reads the same backwards (each cell still starts with a transition), so
+  reverse play gives the bits in reverse order; the framer tells the direction.
+* A stretch of signal ends where the interval between transitions exceeds ``gap_factor``
+  times the local typical interval (:func:`readchan.segment.segment`).
+
+Transitions come from :func:`readchan.detect.detect_logic` for a line-level signal (a square
+wave: mid-level crossings with hysteresis, robust to the tilt of AC coupling because an
+exponential decay never crosses the mid level) and :func:`readchan.detect.detect_head` for a
+raw head signal (pulses whose amplitude grows with speed, followed by the detector's envelope;
+its candidate floor is 2 % of the largest pulses, since a tape signal has no quiet stretch to
+take the noise from).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.ndimage import median_filter
+
+from readchan.detect import Transitions, classify_kind, detect_head, detect_logic
+from readchan.errors import ParameterError
+from readchan.segment import segment
+from readchan.timing import FLAG_LONE_HALF, BitStream, recover_bits
+
+ANCHOR_TOLERANCE = 0.3
+"""A pair of intervals anchors the period when log2 of their ratio lies within ±0.3 of ±1."""
+SIGNAL_KINDS = ("auto", "line", "head")
+
+
+def biphase_positions(bits: np.ndarray, start_level: int = 0) -> tuple[np.ndarray, int]:
+    """Transition positions, in bit cells from the first boundary, of ``bits`` in biphase mark.
+
+    Returns (positions, level after the last cell): boundaries at k (k = 0..n) and mid-cell
+    transitions at k + ½ for every 1 bit; each transition flips the level, starting from
+    ``start_level`` (0 or 1) before the first boundary.
+    """
+    b = np.asarray(bits, np.uint8).ravel()
+    pos = np.sort(np.concatenate((np.arange(b.size + 1, dtype=float),
+                                  np.flatnonzero(b == 1) + 0.5)))
+    return pos, (int(start_level) + pos.size) % 2
+
+
+@dataclass(frozen=True)
+class TapeBits:
+    """Biphase-mark bits of a capture, in capture order.
+
+    Attributes
+    ----------
+    bits : uint8 0/1.
+    start_s : time of the transition that opens each bit cell, seconds.
+    end_s : time of the transition that closes each cell, seconds.
+    period_s : bit period each bit was decided against, seconds.
+    margin : decision margin per bit (:mod:`readchan.timing`), 1 ideal, 0 on the boundary.
+    flags : per-bit ``readchan.timing.FLAG_*``.
+    run : index of the stretch of continuous signal each bit belongs to.
+    runs_s : (n_runs, 2) start and end time of each stretch, seconds.
+    kind : the transition detector used, ``"line"`` or ``"head"``.
+    n_transitions : transitions detected in the whole capture.
+    """
+
+    bits: np.ndarray
+    start_s: np.ndarray
+    end_s: np.ndarray
+    period_s: np.ndarray
+    margin: np.ndarray
+    flags: np.ndarray
+    run: np.ndarray
+    runs_s: np.ndarray
+    kind: str
+    n_transitions: int
+
+    def __len__(self) -> int:
+        return int(self.bits.size)
+
+
+def period_anchors(times_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(time_s, period_s) of every full cell that stands next to a half cell.
+
+    Two neighbouring intervals whose ratio is 2 (within ``ANCHOR_TOLERANCE`` in log2) are a
+    full cell and a half cell; the longer one is the bit period, dated at its middle.
+    """
+    t = np.asarray(times_s, float)
+    d = np.diff(t)
+    if d.size < 2:
+        return np.zeros(0), np.zeros(0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lr = np.log2(d[1:] / d[:-1])
+    up = np.abs(lr - 1.0) < ANCHOR_TOLERANCE          # half then full: the full is d[i+1]
+    down = np.abs(lr + 1.0) < ANCHOR_TOLERANCE        # full then half: the full is d[i]
+    idx = np.concatenate((np.flatnonzero(up) + 1, np.flatnonzero(down)))
+    idx = np.unique(idx)
+    return 0.5 * (t[idx] + t[idx + 1]), d[idx]
+
+
+def period_trace(times_s: np.ndarray, *, window: int = 15) -> np.ndarray | None:
+    """Bit period (s) at every transition (see the module docstring), or None when there are
+    fewer than 3 anchors.
+
+    Two passes: the anchors, median-filtered over 9 of them and interpolated, give a coarse
+    trace; against it every interval is a half cell (ratio below ¾) or a full cell, so every
+    interval gives a cell estimate (2Δ or Δ), and those, median-filtered over ``window``
+    intervals, are the trace, which then follows a steep speed ramp within a few cells.
+    """
+    t = np.asarray(times_s, float)
+    at, per = period_anchors(t)
+    if at.size < 3:
+        return None
+    per = median_filter(per, size=min(9, per.size), mode="nearest")
+    d = np.diff(t)
+    mid = 0.5 * (t[1:] + t[:-1])
+    coarse = np.interp(mid, at, per)
+    cell = np.where(d < 0.75 * coarse, 2.0 * d, d)
+    fine = median_filter(cell, size=min(window, cell.size), mode="nearest")
+    return np.interp(t, mid, fine)
+
+
+def bits_from_times(times_s: np.ndarray) -> BitStream | None:
+    """Biphase-mark bits of one stretch of transition times, or None when it has no anchors."""
+    t = np.asarray(times_s, float)
+    trace = period_trace(t)
+    if trace is None:
+        return None
+    return recover_bits(t, period_at=lambda q: np.interp(q, t, trace))
+
+
+def transitions(x: np.ndarray, rate_hz: float, kind: str = "auto") -> tuple[Transitions, str]:
+    """Transitions of a tape signal and the detector used (``"line"`` or ``"head"``).
+
+    ``auto`` picks ``line`` when the signal spends nearly all its time at two levels
+    (:func:`readchan.detect.classify_kind`), else ``head``.  The median is removed first.
+    """
+    if kind not in SIGNAL_KINDS:
+        raise ParameterError(f"signal kind must be one of {', '.join(SIGNAL_KINDS)}, was {kind!r}")
+    x = np.asarray(x, float)
+    x = x - np.median(x)
+    if kind == "auto":
+        kind = "line" if classify_kind(x) == "logic" else "head"
+    # a tape signal has no quiet stretches to take the noise from, so the head detector's
+    # floor is its own 2 % of the largest pulses and the envelope threshold rejects noise
+    tr = detect_logic(x, rate_hz) if kind == "line" else detect_head(x, rate_hz, floor_sigma=0.0)
+    return tr, kind
+
+
+def decode_biphase(x: np.ndarray, rate_hz: float, *, kind: str = "auto",
+                   gap_factor: float = 6.0, max_gap_s: float = 0.05) -> TapeBits:
+    """Biphase-mark bits of the tape signal ``x`` (one channel, sampled at ``rate_hz``).
+
+    Parameters
+    ----------
+    x : samples of one channel.
+    rate_hz : sample rate in Hz.
+    kind : ``"auto"``, ``"line"`` (a square wave from a deck's output) or ``"head"``.
+    gap_factor : a stretch of signal ends at an interval longer than this many typical intervals.
+    max_gap_s : ... or longer than this outright (a full cell at 0.1× of 24 fps is 5.2 ms).
+    """
+    tr, used = transitions(x, rate_hz, kind)
+    return bits_from_transitions(tr.times_s, kind=used, gap_factor=gap_factor, max_gap_s=max_gap_s)
+
+
+def bits_from_transitions(times_s: np.ndarray, *, kind: str = "line", gap_factor: float = 6.0,
+                          max_gap_s: float = 0.05) -> TapeBits:
+    """:class:`TapeBits` of transition times ``times_s`` (seconds, increasing)."""
+    t = np.asarray(times_s, float)
+    tr = Transitions(t, np.zeros(t.size, np.int64), np.zeros(t.size), np.zeros(t.size),
+                     np.zeros(t.size, np.uint8), 1.0, kind, 0.0)
+    parts: list[tuple[BitStream, np.ndarray]] = []
+    runs = []
+    for seg in segment(tr, gap_factor=gap_factor, min_gap_s=0.0, max_gap_s=max_gap_s, min_transitions=24):
+        ts = t[seg.start:seg.stop]
+        bs = bits_from_times(ts)
+        if bs is None or len(bs) == 0:
+            continue
+        ft = bs.first_transition
+        width = np.where(bs.bits == 1, 2, 1)
+        width = np.where(bs.flags & FLAG_LONE_HALF, 1, width)       # a lone half spans one interval
+        close = np.minimum(ft + width, ts.size - 1)
+        parts.append((bs, ts[close]))
+        runs.append((float(ts[0]), float(ts[-1])))
+    if not parts:
+        z = np.zeros(0)
+        return TapeBits(np.zeros(0, np.uint8), z, z, z, z, np.zeros(0, np.uint8), np.zeros(0, np.int64),
+                        np.zeros((0, 2)), kind, int(t.size))
+    cat = np.concatenate
+    return TapeBits(
+        bits=cat([p.bits for p, _ in parts]).astype(np.uint8),
+        start_s=cat([p.start_s for p, _ in parts]),
+        end_s=cat([e for _, e in parts]),
+        period_s=cat([p.period_s for p, _ in parts]),
+        margin=cat([p.margin for p, _ in parts]),
+        flags=cat([p.flags for p, _ in parts]).astype(np.uint8),
+        run=cat([np.full(len(p), k, np.int64) for k, (p, _) in enumerate(parts)]),
+        runs_s=np.asarray(runs, float),
+        kind=kind,
+        n_transitions=int(t.size),
+    )
