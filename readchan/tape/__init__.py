@@ -12,3 +12,7 @@ synthesizers are :mod:`.synth_ltc` and :mod:`.synth_kcs` over :mod:`.playback`.
 from readchan.tape.ltc import LtcEvent, LtcFrame, LtcRead, decode_ltc, ltc_json
 
 __all__ = ["LtcEvent", "LtcFrame", "LtcRead", "decode_ltc", "ltc_json"]
+
+from readchan.tape.kcs import KcsRead, decode_kcs, kcs_json  # noqa: E402
+
+__all__ += ["KcsRead", "decode_kcs", "kcs_json"]

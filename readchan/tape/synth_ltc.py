@@ -195,6 +195,7 @@ class LtcSynth:
     transition_times_s : true transition times in the capture, seconds.
     edit_times_s : capture time at which the head met each edit (None if it did not).
     noise_rms : RMS of the added white noise, output units.
+    rate_fps : the recorded frame rate.
     """
 
     samples: np.ndarray
@@ -203,6 +204,7 @@ class LtcSynth:
     transition_times_s: np.ndarray
     edit_times_s: tuple[float | None, ...]
     noise_rms: float
+    rate_fps: float
 
 
 def _tape(spec: LtcSpec, n_frames: int):
@@ -308,7 +310,7 @@ def synthesize_ltc(spec: LtcSpec) -> LtcSynth:
         v = float(cell_time(np.array([c]))[0]) if c is not None else float("nan")
         edit_times.append(v if math.isfinite(v) else None)
     return LtcSynth(np.ascontiguousarray(samples), float(spec.rate_hz), tuple(truth), times,
-                    tuple(edit_times), float(rms))
+                    tuple(edit_times), float(rms), float(spec.rate_fps))
 
 
 def _line(t: np.ndarray, edges: np.ndarray, rise_s: np.ndarray, amplitude: float) -> np.ndarray:

@@ -1,0 +1,330 @@
+"""Kansas City standard cassette data: tone zero crossings to bytes, and bytes to bits.
+
+Input: samples of one channel and the sample rate (decode); bytes (encode).
+Output: :class:`KcsRead` (frozen) and its JSON dict by :func:`kcs_json`; the bit stream of bytes.
+
+The standard (BYTE, Feb. 1976; ../shared/REFERENCE.md): a 0 is four cycles of 1200 Hz, a 1
+eight cycles of 2400 Hz (300 baud); the 1200-baud variant uses one and two cycles.  Each byte
+is a start bit (0), eight data bits least significant first and two stop bits (1); the line
+idles at mark (1), and a leader of mark comes first.
+
+Demodulation from zero crossings (each interval between crossings is a half cycle):
+
+1. Band-pass 500–6000 Hz (fourth-order Butterworth, zero phase): hum, DC and rumble go.
+2. Crossings with hysteresis at ± 0.35 of the local RMS (2 ms window), so the threshold
+   follows the level through dropouts, timed by linear interpolation at the zero crossing.
+3. Each interval Δ is put on a log scale where a mark half cycle is 0 and a space half cycle
+   1: ``u = log2(Δ · 4800 Hz)``.  Both tones share the fractional part of u, so its circular
+   mean over 32 intervals is the local tape-speed offset (speed = 2^−offset), whatever the
+   bits: ±10 % speed, wow and flutter are followed.  A second pass averages only the
+   intervals within ±0.15 octave of the lattice (those straddling a bit boundary have other
+   lengths), and the fraction of such intervals tells a tone from noise or programme audio,
+   whose crossing intervals spread continuously.
+4. An interval is tone when at least half of the 32 around it are on the lattice, the offset
+   is within ±0.35 octave and ``u − offset`` within −0.3..1.3.  It is split into mark time and space time: an
+   interval of length Δ, between a local mark half period h and a space half period 2h, holds
+   ``m = 2h − Δ`` of mark and ``Δ − m`` of space (a half cycle whose phase advanced at both
+   rates in turn); the part that matches the previous interval comes first.  Bit boundaries
+   that fall between crossings (tones not starting at a zero crossing, fractional idle) are
+   then placed within the interval.
+5. A UART on the time axis: a start bit begins where mark turns to space; the bits are judged
+   by the mark fraction over the middle 60 % of each of 11 bit cells, at the local bit time
+   (1/baud)/speed.  Stop bits that are not mark, or a cell without tone, are a framing error.
+   The first byte of a block needs ``min_leader_s`` of mark before it; a block ends where the
+   tone is lost, and the next one needs a leader again.
+
+Baud rate: the durations of the mark and space runs, in 1200-baud bit cells, are multiples
+of 4 at 300 baud; when at least 80 % of them are, the capture is 300 baud, else 1200.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import signal as sps
+from scipy.ndimage import uniform_filter1d
+
+from readchan.errors import ParameterError
+from readchan.tape.ltc import _channel, check_rate
+
+BAUDS = (300, 1200)
+MARK_HZ = 2400.0
+SPACE_HZ = 1200.0
+BYTE_BITS = 11
+FORMAT = "kcs"
+NEAR_OCTAVE = 0.15
+"""An interval is on the tone lattice when log2 of it lies within ±0.15 octave (±11 %) of a tone."""
+MIN_QUALITY = 0.5
+"""Fraction of on-lattice intervals (over 32) that makes a stretch tone; noise gives about 0.3."""
+
+
+def kcs_bits(data: bytes) -> np.ndarray:
+    """The bit stream of ``data``: per byte 0, eight data bits LSB first, 1, 1 (uint8)."""
+    b = np.frombuffer(bytes(data), np.uint8)
+    out = np.ones((b.size, BYTE_BITS), np.uint8)
+    out[:, 0] = 0
+    out[:, 1:9] = (b[:, None] >> np.arange(8)) & 1
+    return out.ravel()
+
+
+@dataclass(frozen=True)
+class ToneTrack:
+    """Zero-crossing intervals of an FSK tone, with their mark and space content.
+
+    Attributes
+    ----------
+    times_s : crossing times (n + 1), seconds.
+    speed : local tape speed relative to nominal per interval (n).
+    tone : per interval, True when it is part of a tone (module docstring, step 4).
+    breaks_s, mark_cum_s, tone_cum_s : breakpoints (2n + 1) of the piecewise-constant tone,
+        with the cumulative mark time and tone time at each, seconds.
+    onsets_s : times where mark turns to space, seconds.
+    """
+
+    times_s: np.ndarray
+    speed: np.ndarray
+    tone: np.ndarray
+    breaks_s: np.ndarray
+    mark_cum_s: np.ndarray
+    tone_cum_s: np.ndarray
+    onsets_s: np.ndarray
+
+    def fractions(self, a_s: np.ndarray, b_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(mark fraction of the tone, tone coverage) over windows [a_s, b_s]."""
+        m = np.interp(b_s, self.breaks_s, self.mark_cum_s) - np.interp(a_s, self.breaks_s, self.mark_cum_s)
+        v = np.interp(b_s, self.breaks_s, self.tone_cum_s) - np.interp(a_s, self.breaks_s, self.tone_cum_s)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            frac = np.where(v > 0, m / v, 0.5)
+        return frac, v / np.maximum(b_s - a_s, 1e-12)
+
+    def speed_at(self, t_s: float) -> float:
+        i = int(np.clip(np.searchsorted(self.times_s, t_s) - 1, 0, self.speed.size - 1))
+        return float(self.speed[i])
+
+
+def zero_crossings(x: np.ndarray, rate_hz: float) -> np.ndarray:
+    """Zero-crossing times (s) of the band-passed tone with level-following hysteresis."""
+    hi = min(6000.0, 0.45 * rate_hz)
+    sos = sps.butter(4, [500.0, hi], btype="bandpass", fs=rate_hz, output="sos")
+    y = sps.sosfiltfilt(sos, x)
+    rms = np.sqrt(np.maximum(uniform_filter1d(y * y, size=max(3, int(2e-3 * rate_hz))), 0.0))
+    h = 0.35 * rms
+    s = np.where(y > h, 1, np.where(y < -h, -1, 0)).astype(np.int8)
+    pos = np.where(s != 0, np.arange(s.size), 0)
+    np.maximum.accumulate(pos, out=pos)
+    state = s[pos]
+    change = np.flatnonzero((state[1:] != state[:-1]) & (state[:-1] != 0)) + 1
+    zc = np.flatnonzero(np.signbit(y[1:]) != np.signbit(y[:-1])) + 1
+    if change.size == 0 or zc.size == 0:
+        return np.zeros(0)
+    j = zc[np.clip(np.searchsorted(zc, change, side="right") - 1, 0, zc.size - 1)]
+    a, b = y[j - 1], y[j]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.where(a != b, a / (a - b), 0.0)
+    return np.unique((j - 1 + frac) / rate_hz)
+
+
+def _circular_mean(z: np.ndarray, w: np.ndarray, window: int) -> np.ndarray:
+    """Running weighted circular mean of unit phasors ``z`` over ``window``, in turns (−½..½]."""
+    zr = uniform_filter1d(z.real * w, window, mode="nearest")
+    zi = uniform_filter1d(z.imag * w, window, mode="nearest")
+    return np.arctan2(zi, zr) / (2 * np.pi)
+
+
+def tone_track(times_s: np.ndarray, *, window: int = 32) -> ToneTrack | None:
+    """The :class:`ToneTrack` of crossing times (module docstring, steps 3–4), or None."""
+    c = np.asarray(times_s, float)
+    d = np.diff(c)
+    if d.size < window:
+        return None
+    u = np.log2(np.maximum(d, 1e-9) * 2 * MARK_HZ)
+    z = np.exp(2j * np.pi * u)
+    offset = _circular_mean(z, np.ones(d.size), window)
+    # second pass: only the intervals on the lattice (not those straddling a bit boundary)
+    near = (np.abs((u - offset) - np.round(u - offset)) < NEAR_OCTAVE).astype(float)
+    offset = _circular_mean(z, near, window)
+    quality = uniform_filter1d(near, window, mode="nearest")
+    q = u - offset
+    tone = (quality >= MIN_QUALITY) & (np.abs(offset) <= 0.35) & (q > -0.3) & (q < 1.3)
+    h_mark = 2.0 ** offset / (2 * MARK_HZ)
+    mark = np.clip(2 * h_mark - d, 0.0, d)
+    mark = np.where(tone, mark, 0.0)
+    space = np.where(tone, d - mark, 0.0)
+    mark_frac = np.where(tone, mark / d, 0.0)
+    first_mark = np.concatenate(([True], mark_frac[:-1] >= 0.5))
+    first = np.where(first_mark, mark, space)
+    n = d.size
+    breaks = np.empty(2 * n + 1)
+    breaks[0::2] = c
+    breaks[1::2] = c[:-1] + first
+    gain_m = np.empty(2 * n)
+    gain_m[0::2] = np.where(first_mark, mark, 0.0)
+    gain_m[1::2] = np.where(first_mark, 0.0, mark)
+    gain_v = np.empty(2 * n)
+    gain_v[0::2] = first * tone
+    gain_v[1::2] = (d - first) * tone
+    mark_cum = np.concatenate(([0.0], np.cumsum(gain_m)))
+    tone_cum = np.concatenate(([0.0], np.cumsum(gain_v)))
+    onset = first_mark & tone & (space >= 0.25 * 2 * h_mark)
+    onsets = c[:-1][onset] + mark[onset]
+    return ToneTrack(c, 2.0 ** (-offset), tone, breaks, mark_cum, tone_cum, onsets)
+
+
+def detect_baud(track: ToneTrack) -> int:
+    """300 or 1200 from the mark and space run durations (module docstring)."""
+    d = np.diff(track.times_s)
+    cls = np.where(track.tone, np.where(d * track.speed < 1.5 / (2 * MARK_HZ), 1, 0), -1)
+    edges = np.flatnonzero(cls[1:] != cls[:-1]) + 1
+    runs_cls = cls[edges[:-1]]
+    dur = (track.times_s[edges[1:]] - track.times_s[edges[:-1]]) * track.speed[edges[:-1]]
+    r12 = dur[(runs_cls >= 0) & (dur < 0.02)] * 1200.0
+    if r12.size < 8:
+        return 300
+    near4 = np.abs(r12 / 4 - np.round(r12 / 4)) * 4 < 0.5
+    return 300 if np.mean(near4 & (r12 > 3.5)) >= 0.8 else 1200
+
+
+@dataclass(frozen=True)
+class KcsRead:
+    """Bytes read from a Kansas City standard capture.
+
+    Attributes
+    ----------
+    channel : channel index.
+    baud : 300 or 1200.
+    data : the bytes, framing errors included.
+    byte_times_s : capture time of each start bit's leading edge, seconds.
+    framing_errors : indices of bytes whose stop bits were not mark or whose cells lacked tone.
+    margins : per byte, the smallest bit decision margin |2·mark fraction − 1| (1 ideal).
+    speed : median tape speed relative to nominal over the bytes.
+    valid : at least one byte and no framing error.
+    start_s, end_s : span of the bytes (first start edge, last stop bit's end), seconds.
+    leader_s : length of mark before the first byte, seconds.
+    """
+
+    channel: int
+    baud: int
+    data: bytes
+    byte_times_s: np.ndarray
+    framing_errors: tuple[int, ...]
+    margins: np.ndarray
+    speed: float
+    valid: bool
+    start_s: float
+    end_s: float
+    leader_s: float
+
+
+def _leader_s(track: ToneTrack, t: float, min_s: float) -> float:
+    """Length of nearly unbroken mark ending at ``t`` (checked in ``min_s`` steps back), seconds."""
+    length = 0.0
+    while True:
+        a = np.array([t - length - min_s])
+        frac, cov = track.fractions(a, a + min_s)
+        if a[0] < track.times_s[0] or frac[0] < 0.9 or cov[0] < 0.9:
+            return length
+        length += min_s
+        if length > 60.0:
+            return length
+
+
+def _uart(track: ToneTrack, baud: int, min_leader_s: float):
+    """Bytes, start times, framing errors, margins, speeds and the leader (module docstring)."""
+    out, times, errors, margins, speeds = [], [], [], [], []
+    onsets = track.onsets_s
+    centres = (np.arange(BYTE_BITS) + 0.5)[:, None]
+    half = 0.3
+    k = 0
+    in_block = False
+    prev_end = -np.inf
+    leader = 0.0
+    while k < onsets.size:
+        t = float(onsets[k])
+        sp = track.speed_at(t)
+        bit_s = 1.0 / (baud * sp)
+        if in_block:
+            _, cov = track.fractions(np.array([prev_end]), np.array([max(t, prev_end + 1e-9)]))
+            in_block = cov[0] >= 0.8
+        if not in_block:
+            if not _leader_s(track, t, min_leader_s) >= min_leader_s:
+                k += 1
+                continue
+        a = t + (centres[:, 0] - half) * bit_s
+        b = t + (centres[:, 0] + half) * bit_s
+        frac, cov = track.fractions(a, b)
+        if frac[0] >= 0.5 or cov[0] < 0.5:
+            k += 1
+            continue
+        if not out:
+            leader = _leader_s(track, t, min_leader_s)
+        bits = (frac > 0.5).astype(np.int64)
+        out.append(int(bits[1:9] @ (1 << np.arange(8))))
+        times.append(t)
+        speeds.append(sp)
+        margins.append(float(np.min(np.abs(2 * frac - 1))))
+        bad = bits[9] == 0 or bits[10] == 0 or bool(np.any(cov < 0.5))
+        if bad:
+            errors.append(len(out) - 1)
+            next_t = t + 9.5 * bit_s
+        else:
+            next_t = t + 10.5 * bit_s
+        in_block = True
+        prev_end = next_t
+        k = int(np.searchsorted(onsets, next_t))
+    return out, times, errors, margins, speeds, leader
+
+
+def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: int | None = None,
+               min_leader_s: float = 0.05) -> KcsRead:
+    """Read Kansas City standard bytes from ``samples`` (1-D, or samples × channels).
+
+    Parameters
+    ----------
+    samples : the capture, any units.
+    rate_hz : sample rate in Hz (at least 12 kHz: the band reaches 6 kHz).
+    channel : channel index for a 2-D capture.
+    baud : 300 or 1200; None to detect it.
+    min_leader_s : mark a block's first byte needs before it, seconds.
+
+    Raises
+    ------
+    CaptureError : empty, wrong shape or non-finite samples.
+    ParameterError : bad rate, channel, baud or leader length.
+    """
+    rate = check_rate(rate_hz)
+    if rate < 12_000:
+        raise ParameterError(f"rate_hz must be at least 12 kHz for cassette tones, was {rate_hz!r}")
+    if baud is not None and baud not in BAUDS:
+        raise ParameterError(f"baud must be 300 or 1200, was {baud!r}")
+    if not 0.001 <= min_leader_s <= 60:
+        raise ParameterError(f"min_leader_s must be between 0.001 and 60 s, was {min_leader_s!r}")
+    x = _channel(samples, channel)
+    track = tone_track(zero_crossings(x - np.median(x), rate)) if x.size > 64 else None
+    if track is None:
+        return KcsRead(channel, baud or 300, b"", np.zeros(0), (), np.zeros(0), 1.0, False, 0.0, 0.0, 0.0)
+    used = baud or detect_baud(track)
+    data, times, errors, margins, speeds, leader = _uart(track, used, min_leader_s)
+    t = np.asarray(times, float)
+    sp = float(np.median(speeds)) if speeds else 1.0
+    end = float(t[-1] + BYTE_BITS / (used * speeds[-1])) if times else 0.0
+    return KcsRead(channel, used, bytes(data), t, tuple(errors), np.asarray(margins), sp,
+                   bool(data) and not errors, float(t[0]) if times else 0.0, end, leader)
+
+
+def kcs_json(read: KcsRead) -> dict:
+    """The JSON dict of a cassette read: common keys ``channel``, ``format`` (``"kcs"``),
+    ``direction`` (always ``"forward"``), ``valid``, ``start_s``, ``end_s``; ``data_hex``,
+    ``baud``, ``framing_errors`` (byte indices), ``byte_times_s`` (start-bit leading edges)."""
+    return {
+        "channel": read.channel,
+        "format": FORMAT,
+        "direction": "forward",
+        "valid": read.valid,
+        "start_s": round(read.start_s, 7),
+        "end_s": round(read.end_s, 7),
+        "data_hex": read.data.hex(),
+        "baud": read.baud,
+        "framing_errors": list(read.framing_errors),
+        "byte_times_s": [round(float(v), 7) for v in read.byte_times_s],
+    }
