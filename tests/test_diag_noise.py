@@ -1,10 +1,12 @@
 """Noise and hum diagnostics on captures that went through an analog front end.
 
-The front end is applied here with scipy.signal (first-order AC coupling, a causal Butterworth
-low-pass, quantisation).  Truth: the synthesizer's median |peak| after the front end over the
-RMS of the noise as it leaves the front end; quantisation noise adds step/√12 in quadrature
-(uniform-error model, Widrow & Kollár, *Quantization Noise*, 2008).  SNR = 20·log10(median
-|peak| / noise RMS), as the synthesizer states it.
+The captures come from the synthesizer's front-end stage (readchan.synth.chain: first-order AC
+coupling, a causal Butterworth preamp low-pass, audio or 8-bit scope quantisation), with the
+card-edge pulses on.  Truth: the synthesizer's ``output_snr_db``, 20·log10(median |peak| after
+the front end / RMS of its noise after the front end), quantisation noise step/√12 included in
+quadrature (uniform-error model, Widrow & Kollár, *Quantization Noise*, 2008).  Hum truth: the
+synthesized amplitude times the AC coupling's gain f/√(f² + fc²) (first-order high-pass) and the
+Butterworth preamp's 1/√(1 + (f/fc)^2n).
 """
 
 from __future__ import annotations
@@ -13,12 +15,12 @@ import math
 
 import numpy as np
 import pytest
-from scipy import signal as sps
 
 from readchan.capture import Capture
 from readchan.diagnose import inspect_capture, robust_noise
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
+from readchan.synth.chain import FrontEnd
 from readchan.synth.head import KarlqvistPulse
 
 T1 = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"   # invented
@@ -26,39 +28,24 @@ T2 = ";9912345678901239=29121010000000000?"
 HUM_HZ_TOL = 0.05
 """Hz; the fit's own grid is 0.02 Hz before refinement (observed within 0.03 Hz at 6 % hum)."""
 HEAD = KarlqvistPulse(14.5e-6, 2.15e-6, 12.4e-6)
+BAND_DB = 10 * math.log10(24_000 / 7_900)
+"""The 7.9 kHz preamp passes about this much less white noise than the 24 kHz output band."""
 
 
-def front_end_capture(track, text, *, snr_db, ac_hz=20.0, lp_hz=7900.0, rate_hz=48_000.0, speed_cm_s=30.0,
-                      hum_level=0.0, hum_hz=50.0, scope_v_div=None, lead_s=0.06, seed=0, edge_pulses=True):
-    """(Capture, true SNR dB, true median |peak|, true hum amplitude) of one swipe through a front end."""
+def front_end_capture(track, text, *, snr_db, ac_hz=20.0, lp_hz=7900.0, order=2, rate_hz=48_000.0,
+                      speed_cm_s=30.0, hum_level=0.0, hum_hz=50.0, scope_v_div=None, lead_s=0.06, seed=0,
+                      edge_pulses=True):
+    """(Capture, true output SNR dB, true hum amplitude) of one swipe through a front end;
+    ``snr_db`` is the SNR wanted at the output (the head SNR is set lower by the preamp's band)."""
+    fe = FrontEnd(ac_coupling_hz=ac_hz, preamp_lowpass_hz=lp_hz, preamp_order=order,
+                  scope_volts_per_div=scope_v_div)
+    imp = Impairments(snr_db=snr_db - BAND_DB, hum_hz=hum_hz, hum_level=hum_level, edge_pulses=edge_pulses)
     spec = SynthSpec(tracks=(track_content(text, track=track),), speed=SpeedProfile(speed_cm_s), pulse=HEAD,
-                     impairments=Impairments(edge_pulses=edge_pulses), rate_hz=rate_hz, seed=seed, lead_s=lead_s)
+                     impairments=imp, rate_hz=rate_hz, seed=seed, lead_s=lead_s, front_end=fe)
     res = synthesize(spec)
-    b, a = sps.butter(1, ac_hz, "highpass", fs=rate_hz)
-    sos = sps.butter(2, lp_hz, "low", fs=rate_hz, output="sos")
-
-    def chain(y):
-        return sps.sosfilt(sos, sps.lfilter(b, a, y))
-
-    clean = chain(res.samples[:, 0])
-    tk = res.transition_times_s[0]
-    i = np.round(tk * rate_hz).astype(int)
-    reach = max(2, int(0.2 * np.median(np.diff(tk)) * rate_hz))
-    win = np.clip(i[:, None] + np.arange(-reach, reach + 1), 0, clean.size - 1)
-    peak = float(np.median(np.abs(clean[win]).max(axis=1)))      # the causal filter delays the peaks
-    rng = np.random.default_rng(seed + 1)
-    noise = chain(rng.standard_normal(clean.size))
-    sigma = peak / 10 ** (snr_db / 20)
-    y = clean + sigma * noise / noise.std()
-    t = np.arange(y.size) / rate_hz
-    y += hum_level * peak * np.sin(2 * np.pi * hum_hz * t + 0.7)
-    total = sigma
-    if scope_v_div is not None:
-        step = scope_v_div * 8 / 256          # 256 levels over 8 divisions
-        y = np.round(y / step) * step
-        total = math.hypot(sigma, step / math.sqrt(12))
-    cap = Capture(y[:, None], rate_hz, source="<front end>", units="V" if scope_v_div else "FS")
-    return cap, 20 * math.log10(peak / total), peak, hum_level * peak
+    gain = hum_hz / math.hypot(hum_hz, ac_hz) / math.sqrt(1 + (hum_hz / lp_hz) ** (2 * order))
+    cap = Capture(res.samples, rate_hz, source="<front end>", units="V" if scope_v_div else "FS")
+    return cap, res.output_snr_db[0], hum_level * res.median_peak[0] * gain
 
 
 def _read(cap):
@@ -71,13 +58,13 @@ def _read(cap):
 @pytest.mark.parametrize("snr_db,track,seed", [(15.0, 1, 0), (25.0, 2, 1), (35.0, 1, 2), (35.0, 2, 3),
                                                (45.0, 1, 4), (45.0, 2, 5)])
 def test_snr_within_1_db_with_edge_pulses(snr_db, track, seed):
-    cap, truth, _, _ = front_end_capture(track, T1 if track == 1 else T2, snr_db=snr_db, seed=seed)
+    cap, truth, _ = front_end_capture(track, T1 if track == 1 else T2, snr_db=snr_db, seed=seed)
     _, r = _read(cap)
     assert r.noise.snr_db == pytest.approx(truth, abs=1.0)
 
 
 def test_edge_pulses_are_left_out_of_the_noise():
-    cap, truth, _, _ = front_end_capture(1, T1, snr_db=45.0)
+    cap, truth, _ = front_end_capture(1, T1, snr_db=45.0)
     fe, r = _read(cap)
     assert fe.noise_pulses_excluded >= 1
     assert r.noise.snr_db == pytest.approx(truth, abs=1.0)
@@ -85,14 +72,14 @@ def test_edge_pulses_are_left_out_of_the_noise():
 
 @pytest.mark.parametrize("ac_hz", [5.0, 50.0])
 def test_ac_coupling_recovery_does_not_count_as_noise(ac_hz):
-    cap, truth, _, _ = front_end_capture(2, T2, snr_db=45.0, ac_hz=ac_hz, seed=7)
+    cap, truth, _ = front_end_capture(2, T2, snr_db=45.0, ac_hz=ac_hz, seed=7)
     _, r = _read(cap)
     assert r.noise.snr_db == pytest.approx(truth, abs=1.0)
 
 
 def test_eight_bit_scope_capture_with_a_pre_trigger_stretch():
     # 0.2 V/div: a 0.5 V peak spans 2.5 of the 4 divisions above the centre line
-    cap, truth, _, _ = front_end_capture(2, T2, snr_db=35.0, scope_v_div=0.2, lead_s=0.03, seed=8)
+    cap, truth, _ = front_end_capture(2, T2, snr_db=35.0, scope_v_div=0.2, lead_s=0.03, seed=8)
     fe, r = _read(cap)
     assert fe.quant_step == pytest.approx(0.2 * 8 / 256)
     assert r.noise.snr_db == pytest.approx(truth, abs=1.0)
@@ -101,7 +88,7 @@ def test_eight_bit_scope_capture_with_a_pre_trigger_stretch():
 def test_quiet_samples_on_one_level_count_the_quantisation_noise():
     # noise far below the step: the quiet samples sit on one level, yet every pulse carries
     # the quantisation error, step/√12
-    cap, truth, _, _ = front_end_capture(1, T1, snr_db=60.0, scope_v_div=0.2, seed=9)
+    cap, truth, _ = front_end_capture(1, T1, snr_db=60.0, scope_v_div=0.2, seed=9)
     fe, r = _read(cap)
     assert fe.noise_floored
     assert r.noise.snr_db == pytest.approx(truth, abs=1.0)
@@ -109,7 +96,7 @@ def test_quiet_samples_on_one_level_count_the_quantisation_noise():
 
 def test_short_lead_in_with_strong_hum():
     # one swipe, 24 ms before the card, hum at 0.2 of the peak
-    cap, truth, _, hum = front_end_capture(1, T1, snr_db=38.0, hum_level=0.2, lead_s=0.024, seed=10)
+    cap, truth, hum = front_end_capture(1, T1, snr_db=38.0, hum_level=0.2, lead_s=0.024, seed=10)
     fe, r = _read(cap)
     assert fe.mains_hz == 50.0
     assert fe.hum_hz == pytest.approx(50.0, abs=HUM_HZ_TOL)
@@ -119,7 +106,7 @@ def test_short_lead_in_with_strong_hum():
 
 @pytest.mark.parametrize("hum_hz,level,track", [(60.0, 0.06, 2), (50.0, 0.3, 2), (60.0, 0.1, 1)])
 def test_hum_level_within_20_percent_above_5_percent_of_the_peak(hum_hz, level, track):
-    cap, _, _, hum = front_end_capture(track, T1 if track == 1 else T2, snr_db=35.0, hum_hz=hum_hz,
+    cap, _, hum = front_end_capture(track, T1 if track == 1 else T2, snr_db=35.0, hum_hz=hum_hz,
                                        hum_level=level, lead_s=0.024, seed=11)
     fe, _ = _read(cap)
     assert fe.mains_hz == hum_hz
