@@ -116,19 +116,23 @@ def decode(
     """Decode the tracks held in CAPTURE files: characters, parity, LRC and fields."""
     from readchan.capture import load_capture
     from readchan.decode import decode_capture
-    from readchan.render import exit_code, print_decode, read_dict, reads_of
+    from readchan.render import channel_dict, exit_code, print_decode, read_dict, reads_of, warning_lines
 
     settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz)
-    all_reads = []
+    all_reads, all_results, channels = [], [], []
     for path in captures:
         cap = load_capture(path, rate_hz=rate)
         results = decode_capture(cap, settings, _channels(channel))
         all_reads.extend(reads_of(results))
+        all_results.extend(results)
+        channels.extend(channel_dict(ch, str(path)) for ch in results)
+        for line in warning_lines(str(path), results):
+            err.print(line, highlight=False, markup=False)
         if not as_json:
             print_decode(out, str(path), results, unmask=unmask)
     if as_json:
-        print(json.dumps({"reads": [read_dict(r, unmask=unmask) for r in all_reads]}, indent=2))
-    raise typer.Exit(exit_code(all_reads))
+        print(json.dumps({"reads": [read_dict(r, unmask=unmask) for r in all_reads], "channels": channels}, indent=2))
+    raise typer.Exit(exit_code(all_reads, all_results))
 
 
 @app.command()
@@ -175,7 +179,8 @@ def synth(
     signal: Output = typer.Option(Output.head, help="head: pickup voltage; flux: magnetisation square wave (coil drive)."),
     kind: WriteKind = typer.Option(WriteKind.wav16, "--kind", help="Output file kind."),
     seed: int = typer.Option(0, help="Random seed."),
-    force: bool = typer.Option(False, help="Overwrite OUTPUT if it exists."),
+    force: bool = typer.Option(False, help="Overwrite OUTPUT if it exists, and write it even at a sample rate "
+                               "that undersamples the pulses."),
 ) -> None:
     """Synthesize a capture of known content and known impairments (one channel per track)."""
     from readchan.capture import write_capture
@@ -211,11 +216,30 @@ def synth(
     spec = SynthSpec(tracks=tuple(tracks), speed=SpeedProfile(speed_cm_s, profile.value, variation), pulse=head,
                      rate_hz=rate_hz, amplitude=amplitude, impairments=imp, swipes=swipes, gap_s=gap_s,
                      output=signal.value, seed=seed, front_end=fe)
+    if not force:
+        _refuse_undersampling(spec)
     res = synthesize(spec)
     names = [t.label.replace(" ", "") or f"ch{i}" for i, t in enumerate(tracks)]
     path = write_capture(output, res.samples, res.rate_hz, kind=kind.value, force=force, channel_names=names)
     err.print(f"wrote {path}: {len(tracks)} channel(s), {res.duration_s:.3f} s at {res.rate_hz:g} Hz, "
               f"PW50 {res.pw50_m * 1e6:.1f} µm, {swipes} swipe(s)")
+
+
+def _refuse_undersampling(spec) -> None:
+    """A one-line error when ``spec``'s rate gives fewer than about 3 samples per half cell or
+    2 per PW50 at the profile's fastest speed (:mod:`readchan.sampling`)."""
+    import numpy as np
+
+    from readchan.sampling import synth_sampling
+
+    v_max = float(np.max(spec.speed.speed_cm_s(np.linspace(0.0, 1.0, 1001))))
+    for n, t in enumerate(spec.tracks):
+        cell_m = t.cell_m / (1 + spec.impairments.density_error)
+        smp = synth_sampling(spec.rate_hz, cell_m, spec.pulse.pw50_m, v_max, pulses=spec.output == "head")
+        if smp.undersampled:
+            label = t.label or f"channel {n}"
+            raise ParameterError(f"--rate-hz {spec.rate_hz:g} undersamples {label} at up to {v_max:.3g} cm/s "
+                                 f"({smp.text().split(': ', 1)[1]}); raise the rate or pass --force")
 
 
 def main() -> None:

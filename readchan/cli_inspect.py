@@ -52,12 +52,13 @@ def inspect(
 
     settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz)
     targets = _plot_targets(plot, captures) if plot is not None else [None] * len(captures)
-    doc_reads, doc_channels, all_reads = [], [], []
+    doc_reads, doc_channels, all_reads, all_results = [], [], [], []
     for path, target in zip(captures, targets):
         cap = load_capture(path, rate_hz=rate)
         reports = inspect_capture(cap, settings, _channels(channel))
         for ch in reports:
             all_reads.extend(r.read for r in ch.reads)
+            all_results.append(ch.result)
             doc_channels.append(channel_dict(ch))
             doc_reads.extend(read_dict(ch, r, unmask=unmask) for r in ch.reads)
         if not as_json:
@@ -69,7 +70,7 @@ def inspect(
             err.print(f"wrote {target}: {panels} panel(s)", highlight=False)
     if as_json:
         print(json.dumps({"channels": doc_channels, "reads": doc_reads}, indent=2, allow_nan=False))
-    raise typer.Exit(exit_code(all_reads))
+    raise typer.Exit(exit_code(all_reads, all_results))
 
 
 def _plot_targets(plot: Path, captures: list[Path]) -> list[Path]:
@@ -118,6 +119,7 @@ def _char(r: ReadReport, c: int | None, unmask: bool) -> str | None:
 def channel_dict(ch: ChannelReport) -> dict:
     """Channel-wide front-end numbers as a JSON-ready dict."""
     fe = ch.front_end
+    st = ch.result.status
     return {
         "source": ch.source,
         "channel": fe.channel,
@@ -141,6 +143,12 @@ def channel_dict(ch: ChannelReport) -> dict:
         "hum_hz": _f(fe.hum_hz),
         "mains_hz": _f(fe.mains_hz),
         "hum_amplitude": _f(fe.hum_amplitude),
+        "state": None if st is None else st.state,
+        "reason": None if st is None or not st.reason else st.reason,
+        "recording": None if st is None else st.recording,
+        "undersampled": None if st is None else st.sampling.undersampled,
+        "half_cell_samples": None if st is None else _f(st.sampling.half_cell_samples),
+        "pw50_samples": None if st is None else _f(st.sampling.pw50_samples),
     }
 
 
@@ -158,6 +166,8 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
         "channel": rd.channel,
         "read": r.index,
         "track": rd.track.number if rd.track else None,
+        "track_basis": None if rd.track_evidence is None else rd.track_evidence.basis,
+        "track_evidence": None if rd.track_evidence is None else rd.track_evidence.text(),
         "density_bpi": _f(tm.density_bpi),
         "format": fr.format,
         "direction": fr.direction,
@@ -264,6 +274,8 @@ def _rows(ch: ChannelReport, r: ReadReport) -> list[tuple[str, str, str]]:
     fe, a, n, p, tm = ch.front_end, r.amplitude, r.noise, r.pulse, r.timing
     u = fe.units
     rows: list[tuple[str, str, str]] = []
+    if r.read.track_evidence is not None:
+        rows.append(("track", "assumed", r.read.track_evidence.text()))
     if a is not None:
         rows += [
             ("amplitude", "median |peak|", _val(a.median_peak, ".4g", u)),
@@ -331,7 +343,9 @@ def print_inspect(console: Console, source: str, reports: list[ChannelReport], *
     for ch in reports:
         fe = ch.front_end
         if not ch.reads:
-            line = f"channel {fe.channel} ({fe.kind}): no framed data, {fe.n_transitions} transitions"
+            st = ch.result.status
+            why = st.reason if st is not None else f"{fe.n_transitions} transitions"
+            line = f"channel {fe.channel} ({fe.kind}): no framed data: {why}"
             if fe.noise_rms is not None:
                 line += f"; noise RMS {fe.noise_rms:.3g} {fe.units}"
             if fe.hum_hz is not None:

@@ -6,7 +6,7 @@ produced, so that reports and diagnostics can point back into the capture.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Callable
 
 import numpy as np
@@ -15,6 +15,7 @@ from readchan.capture import Capture
 from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum, refine, signal_band_hz
 from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, classify_kind, clipped_fraction,
                              detect_head, detect_logic, pulse_width_s)
+from readchan.density import TrackEvidence, clocking_pw50_cell, decide_track, leading_zeros
 from readchan.errors import ParameterError
 from readchan.fields import CardFields, parse_fields
 from readchan.formats import KNOWN_FORMATS, TRACKS, CharFormat, TrackSpec
@@ -79,6 +80,8 @@ class ChannelResult:
     segments: tuple[Segment, ...]
     reads: tuple["Read", ...]
     hum_hz: float | None
+    status: "ChannelStatus | None" = None
+    """What the channel holds, and why it gave no read (:mod:`readchan.status`)."""
 
 
 @dataclass(frozen=True)
@@ -97,6 +100,7 @@ class Read:
     track : the assumed track (density) used for speeds.
     mean_speed_cm_s : mean swipe speed from the bit period and the track density.
     recovery : the parity-guided recovery search, when the read first failed its checks.
+    track_evidence : why ``track`` was assumed (:mod:`readchan.density`).
     """
 
     source: str
@@ -109,6 +113,7 @@ class Read:
     track: TrackSpec | None
     mean_speed_cm_s: float | None
     recovery: Recovery | None = None
+    track_evidence: TrackEvidence | None = None
 
     @property
     def valid(self) -> bool:
@@ -263,23 +268,70 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
     else:
         cond, tr, hum = _detect_head_channel(x, rate_hz, settings, channel)
     segs = segment(tr)
-    reads = reads_from(tr, segs, settings, channel=channel, n_channels=n_channels, source=source)
-    return ChannelResult(channel, kind, cond, tr, tuple(segs), reads, hum)
+    skipped: list = []
+    reads = reads_from(tr, segs, settings, channel=channel, n_channels=n_channels, source=source, skipped=skipped)
+    reads = assign_tracks(reads, x, rate_hz, settings, kind=kind, channel=channel, n_channels=n_channels)
+    from readchan.status import channel_status
+
+    status = channel_status(x, rate_hz, channel, tr, segs, reads, skipped, settings.fmt)
+    return ChannelResult(channel, kind, cond, tr, tuple(segs), reads, hum, status)
+
+
+def assign_tracks(reads: tuple[Read, ...], x: np.ndarray, rate_hz: float, settings: DecodeSettings, *,
+                  kind: str = "head", channel: int = 0, n_channels: int = 1) -> tuple[Read, ...]:
+    """Each read with its track decided from the evidence (:func:`readchan.density.decide_track`):
+    the clocking zeros' PW50 over the bit cell (head captures, on the signal with only the
+    baseline removed, so that no low-pass widens the pulses; measured on every head read, for
+    the sampling check too) and the leading zeros; the speed and the fields follow the track."""
+    wide = None
+    out = []
+    for r in reads:
+        fr, bs = r.frame, r.bits
+        zeros = leading_zeros(bs.bits, int(fr.bit_index[0, 0]), fr.direction)
+        pw = None
+        if kind == "head":
+            if wide is None:
+                hp = settings.condition.highpass_hz
+                wide = condition(x, rate_hz, ConditionSettings(highpass_hz=hp or None), channel=channel).signal
+            tr = r.transitions
+            bit_of = np.clip(np.searchsorted(bs.first_transition, np.arange(len(tr)), side="right") - 1,
+                             0, max(len(bs) - 1, 0))
+            if len(bs):
+                pw = clocking_pw50_cell(wide, rate_hz, tr.index, np.sign(tr.amplitude), bs.ratio,
+                                        bs.period_s[bit_of])
+        ev = decide_track(fr.format, len(fr.text), channel, n_channels, settings.track, pw50_cell=pw, zeros=zeros)
+        track = ev.track
+        if track is r.track:
+            out.append(replace(r, track_evidence=ev))
+            continue
+        speed = mean_speed_cm_s(bs, track.density_bpi) if track else None
+        fields = parse_fields(fr.text, fr.format) if not (track and track.number == 3) else None
+        out.append(replace(r, track=track, mean_speed_cm_s=speed, fields=fields, track_evidence=ev))
+    return tuple(out)
 
 
 def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], settings: DecodeSettings, *,
                channel: int = 0, n_channels: int = 1, source: str = "",
-               period_at: Callable[[np.ndarray], np.ndarray] | None = None) -> tuple[Read, ...]:
+               period_at: Callable[[np.ndarray], np.ndarray] | None = None,
+               skipped: list | None = None) -> tuple[Read, ...]:
     """Timing recovery, framing, checks, recovery and fields for each segment of ``tr``.
 
     ``period_at`` (a function of time giving the bit period in seconds) replaces the timing
-    loop's estimate: the reference decoder of the accuracy benchmark.
+    loop's estimate: the reference decoder of the accuracy benchmark.  ``skipped``, when a
+    list, receives a :class:`readchan.status.Skipped` for each segment that gave no read.
     """
+    from readchan.status import Skipped
+
+    def skip(stage, seg, bs, **kw):
+        if skipped is not None:
+            skipped.append(Skipped(stage, seg, len(bs), bs.regularity, **kw))
+
     reads = []
     for seg in segs:
         bs = recover_bits(tr.times_s[seg.start:seg.stop], loop_gain=settings.loop_gain, period_at=period_at)
         span = bs.regular_span()
         if span is None:
+            skip("irregular", seg, bs)
             continue
         # trim the noise detections around the recording, and time the read by what is left
         if span != (0, seg.stop - seg.start):
@@ -288,9 +340,14 @@ def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], setti
         seg = Segment(a, b, float(tr.times_s[a]), float(tr.times_s[b - 1]))
         sub = tr.subset(a, b)
         if bs.regularity < MIN_REGULARITY:
+            skip("irregular", seg, bs)
             continue
         fr = frame(bs.bits, settings.fmt) if settings.fmt is not None else frame_auto(bs.bits)
-        if fr is None or not _clocked(bs.bits, fr, MIN_CLOCKING_ZEROS):
+        if fr is None:
+            skip("no-sentinel", seg, bs)
+            continue
+        if not _clocked(bs.bits, fr, MIN_CLOCKING_ZEROS):
+            skip("few-zeros", seg, bs, zeros=leading_zeros(bs.bits, int(fr.bit_index[0, 0]), fr.direction))
             continue
         recovery = None
         fmt = settings.fmt or next(f for f in KNOWN_FORMATS if f.name == fr.format)

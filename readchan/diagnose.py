@@ -71,6 +71,8 @@ from readchan.capture import Capture
 from readchan.condition import ConditionSettings, HumFit, condition, fit_hum
 from readchan.decode import ChannelResult, DecodeSettings, Read, between_pulses_mask, decode_channel, quiet_mask
 from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK, noise_rms
+from readchan.framing import missing_end
+from readchan.sampling import MIN_SAMPLES_PER_HALF_CELL, MIN_SAMPLES_PER_PW50
 from readchan.timing import BOUNDARY, FLAG_LONE_HALF, FLAG_LONG
 
 __all__ = [
@@ -135,6 +137,11 @@ LIMITS = (
           "derived: with loop gain 0.25 the timing loop lags a 1.25 %/bit speed change by 0.05 cell"),
     Limit("asymmetry_abs_pct", "asymmetric peaks", "peak asymmetry", "%", 1.0, 20.0, "max", "common practice"),
     Limit("clipped_fraction", "clipping", "clipped samples", "%", 100.0, 0.001, "max", "common practice"),
+    Limit("half_cell_samples", "undersampled", "samples per half cell", "", 1.0, MIN_SAMPLES_PER_HALF_CELL, "min",
+          "common practice: below about 3 samples per half cell a transition's time is quantised to a third "
+          "of the shortest interval (readchan.sampling)"),
+    Limit("pw50_samples", "undersampled", "samples per PW50", "", 1.0, MIN_SAMPLES_PER_PW50, "min",
+          "common practice: below about 2 samples per PW50 a pulse's peak and width are guesses (readchan.sampling)"),
     Limit("hum_ratio", "mains hum", "hum / median peak", "%", 100.0, 0.2, "max",
           "derived: half of the 0.4 detection threshold (a baseline shifted further hides pulses)"),
 )
@@ -319,7 +326,8 @@ class Anomaly:
     kind : ``"polarity"`` (two transitions of the same polarity: one missing), ``"extra"``
         (a noise peak dropped), ``"weak"`` (a transition rescued below threshold),
         ``"lone-half"`` (a half cell with no second half), ``"long"`` (an interval over 1.6
-        cells), ``"parity"``, ``"lrc"``, ``"no-end"`` (no end sentinel), ``"corrected"``.
+        cells), ``"parity"``, ``"lrc"``, ``"no-end"`` (no end sentinel), ``"no-lrc"`` (the text ends in the
+        end sentinel, the LRC character after it was not read), ``"corrected"``.
     t_s : time in seconds; sample : nearest sample index.
     bit : bit index (time order) or None; char : character index (the LRC character is
         ``len(text)``) or None.
@@ -443,7 +451,7 @@ def verdict_text(checks: tuple[Check, ...]) -> str:
     bad = [c for c in checks if not c.ok]
     if not bad:
         return f"ok; least headroom: {format_check(least)}"
-    names = ", ".join(c.limit.label for c in sorted(bad, key=lambda c: c.headroom))
+    names = ", ".join(dict.fromkeys(c.limit.label for c in sorted(bad, key=lambda c: c.headroom)))
     return f"{names}; least headroom: {format_check(least)}"
 
 
@@ -481,7 +489,14 @@ def inspect_channel(x: np.ndarray, rate_hz: float, result: ChannelResult, *, hig
     """
     x = np.asarray(x, dtype=float)
     rate_hz = float(rate_hz)
-    segs = list(result.segments) + [r.segment for r in result.reads]
+    # Quiet: away from the reads and from recordings that gave none.  Stretches of transitions
+    # that are not F2F-regular (noise detections at a low SNR) stay in: their isolated pulses,
+    # if any, are left out by robust_noise.
+    segs = [r.segment for r in result.reads]
+    if result.status is not None:
+        segs += [k.segment for k in result.status.skipped if k.stage != "irregular"]
+    else:
+        segs += list(result.segments)
     quiet = quiet_mask(x.size, rate_hz, segs, guard_s=GUARD_S)
     if result.kind == "logic":
         fe = FrontEnd(result.channel, "logic", units, rate_hz, x.size / rate_hz, float(np.median(x)), None,
@@ -767,7 +782,7 @@ def _read_report(n: int, r: Read, w: np.ndarray, rate_hz: float, fe: FrontEnd, c
         noise = Noise(float(fe.noise_rms), float(snr), hum_ratio)
         pulse = _pulse_shape(tr, bs, w, rate_hz, timing, r)
     anomalies = _anomalies(r, rate_hz)
-    checks = _checks(amp, noise, pulse, timing)
+    checks = _checks(amp, noise, pulse, timing, rate_hz)
     return ReadReport(n, r, amp, noise, pulse, timing, anomalies, checks)
 
 
@@ -1053,7 +1068,8 @@ def _anomalies(r: Read, rate_hz: float) -> tuple[Anomaly, ...]:
         k = char_at(c)
         out.append(Anomaly("lrc", float(bs.start_s[k]), int(round(bs.start_s[k] * rate_hz)), k, c))
     if not fr.complete:
-        out.append(Anomaly("no-end", float(r.end_s), int(round(r.end_s * rate_hz)), None, None))
+        kind = "no-lrc" if missing_end(fr) == "no LRC" else "no-end"
+        out.append(Anomaly(kind, float(r.end_s), int(round(r.end_s * rate_hz)), None, None))
     out.sort(key=lambda a: a.t_s)
     return tuple(out)
 
@@ -1066,8 +1082,11 @@ def _headroom(lim: Limit, v: float) -> float:
     return lim.limit / v if v > 0 else math.inf
 
 
-def _checks(amp, noise, pulse, timing: Timing) -> tuple[Check, ...]:
+def _checks(amp, noise, pulse, timing: Timing, rate_hz: float = math.nan) -> tuple[Check, ...]:
+    half = 0.5 * float(np.median(timing.period_s)) * rate_hz if timing.period_s.size else None
     values = {
+        "half_cell_samples": half,
+        "pw50_samples": None if pulse is None else pulse.pw50_s * rate_hz,
         "snr_db": None if noise is None else noise.snr_db,
         "margin_min": timing.margin_min,
         "pw50_cell": None if pulse is None else pulse.pw50_cell,

@@ -541,3 +541,15 @@ def _frozen(arr: np.ndarray) -> np.ndarray:
     arr = np.ascontiguousarray(arr)
     arr.setflags(write=False)
     return arr
+
+
+def missing_end(fr: Frame) -> str:
+    """What an incomplete read lacks, for its LRC verdict: ``"no LRC"`` when the text ends in
+    the end sentinel (the LRC character after it was not read), else ``"no end sentinel"``.
+    Custom formats are judged by their end character when their name is a known format's."""
+    from readchan.formats import KNOWN_FORMATS
+
+    fmt = next((x for x in KNOWN_FORMATS if x.name == fr.format), None)
+    if fmt is not None and fmt.lrc and len(fr.text) >= 2 and fr.text.endswith(fmt.end_char):
+        return "no LRC"
+    return "no end sentinel"

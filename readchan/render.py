@@ -14,6 +14,7 @@ from rich.text import Text
 from readchan.decode import ChannelResult, Read
 from readchan.errors import EXIT_INVALID, EXIT_NO_DATA, EXIT_VALID
 from readchan.fields import mask_text
+from readchan.framing import missing_end
 
 
 def read_dict(r: Read, *, unmask: bool = False) -> dict:
@@ -24,6 +25,8 @@ def read_dict(r: Read, *, unmask: bool = False) -> dict:
         "channel": r.channel,
         "format": f.format,
         "track": r.track.number if r.track else None,
+        "track_basis": None if r.track_evidence is None else r.track_evidence.basis,
+        "track_evidence": None if r.track_evidence is None else r.track_evidence.text(),
         "direction": f.direction,
         "text": mask_text(f.text, f.format, unmask),
         "valid": bool(f.valid),
@@ -51,11 +54,61 @@ def reads_of(results: list[ChannelResult]) -> list[Read]:
     return [r for ch in results for r in ch.reads]
 
 
-def exit_code(reads: list[Read]) -> int:
-    """0 when every read is valid, 1 when some read is not, 3 when there is none."""
+def exit_code(reads: list[Read], results: list[ChannelResult] | None = None) -> int:
+    """0 when every read is valid, 1 when some read is not or some channel holds a regular F2F
+    recording that gave no read (:mod:`readchan.status`), 3 when there is neither.  A channel
+    without activity does not change the code."""
+    unread = any(ch.status is not None and ch.status.unread_recording for ch in results or ())
     if not reads:
-        return EXIT_NO_DATA
-    return EXIT_VALID if all(r.valid for r in reads) else EXIT_INVALID
+        return EXIT_INVALID if unread else EXIT_NO_DATA
+    return EXIT_VALID if all(r.valid for r in reads) and not unread else EXIT_INVALID
+
+
+def channel_dict(ch: ChannelResult, source: str = "") -> dict:
+    """One channel's state as a JSON-ready dict: reads, state, why no read, sampling."""
+    st = ch.status
+    return {
+        "source": source,
+        "channel": ch.channel,
+        "kind": ch.kind,
+        "transitions": len(ch.transitions),
+        "reads": len(ch.reads),
+        "state": None if st is None else st.state,
+        "reason": None if st is None or not st.reason else st.reason,
+        "recording": None if st is None else st.recording,
+        "clipped_fraction": None if st is None else round(st.clipped_fraction, 6),
+        "undersampled": None if st is None else st.sampling.undersampled,
+        "half_cell_samples": None if st is None or st.sampling.half_cell_samples is None
+        else round(st.sampling.half_cell_samples, 3),
+        "pw50_samples": None if st is None or st.sampling.pw50_samples is None else round(st.sampling.pw50_samples, 3),
+    }
+
+
+def no_read_lines(source: str, results: list[ChannelResult]) -> list[Text]:
+    """One line per channel without a read: why (:mod:`readchan.status`)."""
+    lines = []
+    for ch in results:
+        if ch.reads:
+            continue
+        st = ch.status
+        why = st.reason if st is not None else f"{len(ch.transitions)} transitions"
+        style = "bold red" if st is not None and st.unread_recording else "yellow"
+        line = Text(f"channel {ch.channel}: ")
+        line.append("no framed data", style=style)
+        line.append(f": {why}")
+        lines.append(line)
+    return lines
+
+
+def warning_lines(source: str, results: list[ChannelResult]) -> list[str]:
+    """``readchan: warning: ...`` lines for channels whose pulses are undersampled."""
+    out = []
+    for ch in results:
+        st = ch.status
+        if st is not None and st.sampling.undersampled and (ch.reads or len(ch.transitions)):
+            out.append(f"readchan: warning: {source} channel {ch.channel}: {st.sampling.text()}; "
+                       "speed, PW50 and margins are not to be trusted")
+    return out
 
 
 def _verdict(ok: bool, good: str = "ok", bad: str = "FAIL") -> Text:
@@ -74,7 +127,7 @@ def decode_table(reads: list[Read], *, unmask: bool = False, title: str | None =
         if f.corrected:
             how = "recovered" if r.recovery is not None and r.recovery.frame is not None else "corrected"
             parity = Text(f"{how} {','.join(map(str, f.corrected))}", style="yellow")
-        lrc = _verdict(f.lrc_ok) if f.complete else Text("no end", style="bold red")
+        lrc = _verdict(f.lrc_ok) if f.complete else Text(missing_end(f), style="bold red")
         speed = "" if r.mean_speed_cm_s is None else f"{r.mean_speed_cm_s:.1f}"
         t.add_row(str(n), str(r.channel), str(r.track.number) if r.track else "?", f.format, f.direction,
                   str(len(f.text)), parity, lrc, str(len(r.bits)), speed, f"{r.start_s:.3f}–{r.end_s:.3f}")
@@ -113,14 +166,29 @@ def field_lines(reads: list[Read], *, unmask: bool = False) -> list[Text]:
     return lines
 
 
+def track_lines(reads: list[Read]) -> list[Text]:
+    """One line per read: the track assumed and on what evidence (:mod:`readchan.density`)."""
+    lines = []
+    for n, r in enumerate(reads):
+        ev = r.track_evidence
+        if ev is not None:
+            lines.append(Text(f"read {n}  {ev.text()}", style="yellow" if ev.ambiguous else ""))
+    return lines
+
+
 def print_decode(console: Console, source: str, results: list[ChannelResult], *, unmask: bool = False) -> None:
+    """Every channel of one capture: the reads' table, characters, tracks and fields, and a
+    line for each channel that gave no read."""
     reads = reads_of(results)
     if not reads:
-        n_tr = sum(len(ch.transitions) for ch in results)
-        console.print(f"{source}: no framed data ({n_tr} transitions found)")
-        return
-    console.print(decode_table(reads, unmask=unmask, title=source))
-    for line in text_lines(reads, unmask=unmask):
-        console.print(line, soft_wrap=True)
-    for line in field_lines(reads, unmask=unmask):
+        console.print(Text(source, style="bold"))
+    else:
+        console.print(decode_table(reads, unmask=unmask, title=source))
+        for line in text_lines(reads, unmask=unmask):
+            console.print(line, soft_wrap=True)
+        for line in track_lines(reads):
+            console.print(line, soft_wrap=True)
+        for line in field_lines(reads, unmask=unmask):
+            console.print(line, soft_wrap=True)
+    for line in no_read_lines(source, results):
         console.print(line, soft_wrap=True)
