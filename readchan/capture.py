@@ -45,15 +45,39 @@ from readchan.errors import CaptureError, ParameterError
 __all__ = [
     "Capture",
     "ClippingWarning",
+    "MAX_SAMPLES",
     "MIN_SAMPLES",
+    "NonPhysicalSampleWarning",
+    "RATE_RANGE_HZ",
     "TruncatedCaptureWarning",
     "WRITE_KINDS",
+    "check_output_path",
+    "check_rate_range",
+    "describe_outliers",
+    "display_path",
     "load_capture",
+    "repair_outliers",
     "write_capture",
 ]
 
 #: Fewest samples a loaded capture may hold.
 MIN_SAMPLES = 16
+
+#: Most sample values (samples × channels) a loaded capture may hold: 2 GB as float64, about
+#: 87 minutes of a 48 kHz mono capture.  A header that declares more is not believed before the
+#: data are there: the samples are read in blocks and loading stops with an error at the limit.
+MAX_SAMPLES = 250_000_000
+
+#: Sample rates readchan decodes, in Hz (inclusive).  Below 100 Hz not even the baseline
+#: high-pass (20 Hz) fits under Nyquist; above 1 GHz a card swipe (tens of milliseconds)
+#: would be 10⁷ samples per bit cell, and the filters lose their numerical precision.
+RATE_RANGE_HZ = (100.0, 1e9)
+
+#: A sample more than this many times the channel's level (its 99.9th percentile magnitude
+#: about the median), or of magnitude 1e150 or more (its square overflows float64), cannot
+#: come from a head, an amplifier or a converter: it is a fault in the file.
+OUTLIER_RATIO = 1e3
+_OUTLIER_ABSOLUTE = 1e150
 
 #: Kinds of file :func:`write_capture` can produce.
 WRITE_KINDS = ("wav16", "wav24", "wav-float", "flac", "csv")
@@ -94,6 +118,11 @@ class TruncatedCaptureWarning(UserWarning):
     """An audio file holds less sample data than its header declares; what is present was loaded."""
 
 
+class NonPhysicalSampleWarning(UserWarning):
+    """A channel holds samples far beyond any level a recording can have (a fault in the file);
+    they were replaced by interpolation between their neighbours before decoding."""
+
+
 class ClippingWarning(UserWarning):
     """Samples outside -1..1 were clipped while writing an integer-PCM file."""
 
@@ -105,8 +134,19 @@ def _one_line(text: str) -> str:
     return " ".join(str(text).split())
 
 
+def display_path(path: str | os.PathLike | bytes) -> str:
+    """A file name as it can be printed: bytes that are not UTF-8 (held by Python as lone
+    surrogates) are shown as ``\\xe9`` escapes instead of breaking the output."""
+    if isinstance(path, bytes):
+        raw = path
+    else:
+        raw = os.fsencode(os.fspath(path)) if isinstance(path, os.PathLike) else str(path).encode(
+            "utf-8", "surrogateescape")
+    return raw.decode("utf-8", "backslashreplace")
+
+
 def _err(source: str, problem: str) -> CaptureError:
-    return CaptureError(_one_line(f"{source}: {problem}"))
+    return CaptureError(_one_line(f"{display_path(source)}: {problem}"))
 
 
 def _show(text: str, limit: int = 40) -> str:
@@ -126,6 +166,16 @@ def _check_rate(rate_hz: object, what: str = "rate_hz") -> float:
         raise ParameterError(_one_line(f"{what} must be a number of hertz, not {rate_hz!r}")) from None
     if not math.isfinite(rate) or rate <= 0.0:
         raise ParameterError(f"{what} must be finite and > 0 Hz, got {rate!r}")
+    return rate
+
+
+def check_rate_range(rate_hz: float, what: str = "sample rate") -> float:
+    """Return ``rate_hz`` if readchan can decode at it (:data:`RATE_RANGE_HZ`), else raise
+    :class:`~readchan.errors.ParameterError` naming the range."""
+    rate = _check_rate(rate_hz, what)
+    lo, hi = RATE_RANGE_HZ
+    if not lo <= rate <= hi:
+        raise ParameterError(f"{what} must be between {lo:g} Hz and {hi:g} Hz, was {rate:g} Hz")
     return rate
 
 
@@ -259,6 +309,63 @@ class Capture:
                 f"rate_hz={self.rate_hz!r}, units={self.units!r}, channel_names={self.channel_names!r})")
 
 
+# --------------------------------------------------------------------------- faults in the data
+
+
+def repair_outliers(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Replace the non-physical samples of one channel by linear interpolation between their
+    neighbours.
+
+    A sample is non-physical when its magnitude about the channel's median is 1e150 or more
+    (its square overflows float64), or more than :data:`OUTLIER_RATIO` (10³, 60 dB) times the
+    channel's level: the 99.9th percentile of the other samples' magnitudes about the median,
+    which sits at the pulse peaks when a swipe is present and at the noise peaks when not.  No
+    head, amplifier or converter produces such a value next to its neighbours: it is a fault
+    in the file (a bad write, a corrupted float), and left in place it would set every level
+    the decoder derives (noise, envelope, filters) and hide the whole channel.
+
+    Parameters
+    ----------
+    x : one channel's samples, finite.
+
+    Returns
+    -------
+    (samples, positions)
+        ``x`` itself when nothing is wrong, else a repaired copy; and the indices of the samples
+        replaced (int64, increasing; empty when none).
+    """
+    x = np.asarray(x, dtype=np.float64)
+    if x.size < 2:
+        return x, np.zeros(0, np.int64)
+    step = max(1, x.size // 1_000_000)
+    centre = float(np.median(x[::step]))
+    dev = np.abs(x - centre)
+    wild = dev >= _OUTLIER_ABSOLUTE
+    sane = dev[::step][dev[::step] < _OUTLIER_ABSOLUTE]
+    if sane.size:
+        level = float(np.percentile(sane, 99.9))
+        if level > 0:
+            wild |= dev > OUTLIER_RATIO * level
+    bad = np.flatnonzero(wild)
+    if bad.size == 0:
+        return x, bad.astype(np.int64)
+    good = np.flatnonzero(~wild)
+    y = x.copy()
+    y[bad] = np.interp(bad, good, x[good]) if good.size else centre
+    return y, bad.astype(np.int64)
+
+
+def describe_outliers(positions: np.ndarray, rate_hz: float) -> str:
+    """One line naming how many samples were replaced and where (first and last, in samples and
+    seconds)."""
+    n = int(positions.size)
+    first, last = int(positions[0]), int(positions[-1])
+    where = (f"sample {first} (t = {first / rate_hz:.6g} s)" if n == 1 else
+             f"samples {first} (t = {first / rate_hz:.6g} s) to {last} (t = {last / rate_hz:.6g} s)")
+    return (f"{n} non-physical sample{'s' if n > 1 else ''} (over {OUTLIER_RATIO:g}× the channel's level) at "
+            f"{where}, replaced by interpolation before decoding")
+
+
 # --------------------------------------------------------------------------- loading
 
 
@@ -268,14 +375,16 @@ def load_capture(path: str | Path, *, rate_hz: float | None = None,
 
     Parameters
     ----------
-    path : str or pathlib.Path
+    path : str, bytes or pathlib.Path
         The file.  ``.csv``, ``.txt``, ``.tsv``, ``.dat`` and ``.asc`` are read
         as text; anything else is tried as audio (WAV of any subtype, FLAC,
-        AIFF, ...) and, failing that, as text.
+        AIFF, ...) and, failing that, as text.  A name need not be valid
+        UTF-8: the file is opened by its bytes.
     rate_hz : float, optional
-        Sample rate in hertz.  Required for a text table without a time
-        column.  When the file carries its own rate (an audio header or a time
-        column) the two must agree within 1 % and ``rate_hz`` is used.
+        Sample rate in hertz, within :data:`RATE_RANGE_HZ`.  Required for a
+        text table without a time column.  When the file carries its own rate
+        (an audio header or a time column) the two must agree within 1 % and
+        ``rate_hz`` is used.
     time_column : bool, optional
         For text tables: whether the first column is time.  ``None`` (the
         default) detects it: a header naming it time (``time``, ``t``, ``s``,
@@ -292,20 +401,25 @@ def load_capture(path: str | Path, *, rate_hz: float | None = None,
     ------
     CaptureError
         If the file is missing, a directory, empty, unreadable, truncated
-        inside its header, not uniformly sampled, ill-formed, holds NaN/Inf or
-        fewer than :data:`MIN_SAMPLES` samples.
+        inside its header, not uniformly sampled, ill-formed, holds NaN/Inf,
+        fewer than :data:`MIN_SAMPLES` samples or more than
+        :data:`MAX_SAMPLES` sample values, or its rate (header or time
+        column) lies outside :data:`RATE_RANGE_HZ`.
     ParameterError
-        If ``rate_hz`` is given but not finite and > 0.
+        If ``rate_hz`` is given but outside :data:`RATE_RANGE_HZ`.
 
     Warns
     -----
     TruncatedCaptureWarning
-        If a WAV file holds less data than its header declares; the complete
-        samples present are loaded.
+        If an audio file (WAV, AIFF, FLAC, ...) holds less data than its
+        header declares, or its stream breaks off; the complete samples
+        present are loaded.
     """
+    if isinstance(path, bytes):
+        path = os.fsdecode(path)          # a name that is not UTF-8 keeps its bytes (surrogates)
     source = str(path)
     if rate_hz is not None:
-        rate_hz = _check_rate(rate_hz)
+        rate_hz = check_rate_range(rate_hz, "the given sample rate (rate_hz)")
     if time_column not in (None, True, False):
         raise ParameterError(f"time_column must be True, False or None, not {time_column!r}")
     try:
@@ -353,24 +467,33 @@ def _soundfile_reason(exc: BaseException) -> str:
 
 
 def _load_audio(p: Path, source: str, rate_hz: float | None) -> Capture:
+    # soundfile is given an open file, not the name: a name that is not UTF-8 then still opens
     try:
-        with sf.SoundFile(str(p)) as snd:
+        fh = open(p, "rb")
+    except OSError as exc:
+        raise _err(source, f"cannot read file ({exc.strerror or exc})") from None
+    with fh:
+        try:
+            snd = sf.SoundFile(fh)
+        except (sf.SoundFileError, RuntimeError, TypeError) as exc:
+            raise _NotAudio(_soundfile_reason(exc)) from None
+        except (OSError, ValueError, EOFError) as exc:
+            raise _err(source, f"cannot read audio data ({_soundfile_reason(exc)})") from None
+        with snd:
             file_rate = float(snd.samplerate)
-            data = snd.read(dtype="float64", always_2d=True)
-    except (sf.SoundFileError, RuntimeError, TypeError) as exc:
-        raise _NotAudio(_soundfile_reason(exc)) from None
-    except (OSError, ValueError, EOFError) as exc:
-        raise _err(source, f"cannot read audio data ({_soundfile_reason(exc)})") from None
+            data, broke_off = _read_audio(snd, fh, source, os.fstat(fh.fileno()).st_size)
 
-    truncated = _wav_truncation(p)
+    truncated = _chunk_truncation(p)
     note = ""
     if truncated is not None:
         declared, present = truncated
         note = " (the file is truncated)"
-        warnings.warn(_one_line(
-            f"{source}: file is truncated: its header declares {declared} bytes of sample data but only "
-            f"{present} are present; loaded the {data.shape[0]} complete samples"),
-            TruncatedCaptureWarning, stacklevel=3)
+        _warn_truncated(f"{display_path(source)}: file is truncated: its header declares {declared} bytes of sample "
+                        f"data but only {present} are present; loaded the {data.shape[0]} complete samples")
+    elif broke_off:
+        note = " (the file is truncated)"
+        _warn_truncated(f"{display_path(source)}: file is truncated: {broke_off}; loaded the {data.shape[0]} "
+                        f"complete samples before it")
     if data.shape[0] < MIN_SAMPLES:
         raise _err(source, f"holds {data.shape[0]} samples{note}; at least {MIN_SAMPLES} are needed")
     if file_rate <= 0:
@@ -378,11 +501,105 @@ def _load_audio(p: Path, source: str, rate_hz: float | None) -> Capture:
     if rate_hz is not None and _rates_disagree(file_rate, rate_hz):
         raise _err(source, f"file header says {file_rate:g} Hz but the given rate is {rate_hz:g} Hz "
                            f"(more than 1 % apart)")
+    if rate_hz is None:
+        _check_file_rate(source, file_rate, "header gives")
     bad = _first_nonfinite(data)
     if bad is not None:
         raise _err(source, f"sample {bad[0]} of channel {bad[1]} is {data[bad]!r}, not a finite number")
     return Capture(samples=np.ascontiguousarray(data), rate_hz=rate_hz or file_rate, source=source,
                    units="FS", channel_names=_default_names(data.shape[1]))
+
+
+def _warn_truncated(message: str) -> None:
+    warnings.warn(_one_line(message), TruncatedCaptureWarning, stacklevel=4)
+
+
+def _check_file_rate(source: str, rate_hz: float, how: str) -> None:
+    lo, hi = RATE_RANGE_HZ
+    if not lo <= rate_hz <= hi:
+        raise _err(source, f"{how} a sample rate of {rate_hz:.6g} Hz; readchan decodes {lo:g} Hz to {hi:g} Hz")
+
+
+# Bytes per sample of the uncompressed subtypes: for these the header's frame count can be
+# checked against the file size before anything is allocated.
+_SUBTYPE_BYTES = {"PCM_S8": 1, "PCM_U8": 1, "PCM_16": 2, "PCM_24": 3, "PCM_32": 4, "FLOAT": 4, "DOUBLE": 8,
+                  "ULAW": 1, "ALAW": 1}
+_AUDIO_BLOCK_FRAMES = 1 << 16
+
+
+def _read_audio(snd: sf.SoundFile, fh, source: str, size: int) -> tuple[np.ndarray, str]:
+    """All frames of ``snd`` (opened on ``fh``) as float64 (frames, channels), and why the stream
+    broke off ('' if it did not).  A header's frame count is trusted for one allocation only when
+    the file is large enough to hold that many uncompressed samples and they are within
+    :data:`MAX_SAMPLES`; otherwise the data are read in blocks, so a header that claims 2³⁶
+    samples costs nothing, and loading stops at the limit."""
+    channels = max(int(snd.channels), 1)
+    declared = int(snd.frames)
+    limit_frames = MAX_SAMPLES // channels
+    width = _SUBTYPE_BYTES.get(snd.subtype)
+    if width is not None and 0 <= declared <= limit_frames and declared * channels * width <= size:
+        try:
+            return snd.read(dtype="float64", always_2d=True), ""
+        except _AUDIO_ERRORS as exc:
+            raise _err(source, f"cannot read audio data ({_soundfile_reason(exc)})") from None
+    blocks: list[np.ndarray] = []
+    total = 0
+    fault = None
+    while True:
+        try:
+            block = snd.read(_AUDIO_BLOCK_FRAMES, dtype="float64", always_2d=True)
+        except _AUDIO_ERRORS as exc:
+            fault = _soundfile_reason(exc)
+            break
+        if block.shape[0]:
+            blocks.append(block)
+            total += block.shape[0]
+        if total > limit_frames:
+            raise _err(source, f"holds more than {MAX_SAMPLES:,} sample values ({channels} channel(s)), the most "
+                               f"readchan loads; cut the capture into parts")
+        if block.shape[0] < _AUDIO_BLOCK_FRAMES:
+            break
+    data = np.concatenate(blocks) if len(blocks) > 1 else (blocks[0] if blocks else np.zeros((0, channels)))
+    if fault is not None:
+        # the last block failed as a whole: read again up to the fault in ever smaller blocks
+        data = _salvage(fh, data, channels)
+        if data.shape[0] == 0:
+            raise _err(source, f"cannot read audio data ({fault})")
+        claim = f"its header declares {declared} samples but " if declared > data.shape[0] else ""
+        return data, f"{claim}the audio stream breaks off after sample {data.shape[0]} ({fault})"
+    if declared > data.shape[0]:
+        return data, f"its header declares {declared} samples but the stream holds {data.shape[0]}"
+    return data, ""
+
+
+_AUDIO_ERRORS = (sf.SoundFileError, RuntimeError, OSError, ValueError, EOFError)
+
+
+def _salvage(fh, good: np.ndarray, channels: int) -> np.ndarray:
+    """The frames of the file on ``fh`` up to a decoding fault: ``good`` (read before the
+    failing block), then blocks of 4096, 256, 16 and 1 frames, each pass reopening the file and
+    continuing from what the previous pass read."""
+    have = good
+    for frames in (4096, 256, 16, 1):
+        try:
+            fh.seek(0)
+            with sf.SoundFile(fh) as snd:
+                if have.shape[0]:
+                    snd.read(have.shape[0], dtype="float64", always_2d=True)
+                more: list[np.ndarray] = [have]
+                try:
+                    while True:
+                        block = snd.read(frames, dtype="float64", always_2d=True)
+                        if block.shape[0]:
+                            more.append(block)
+                        if block.shape[0] < frames:
+                            break
+                except _AUDIO_ERRORS:
+                    pass
+                have = np.concatenate(more)
+        except _AUDIO_ERRORS:
+            break
+    return have
 
 
 def _riff_cut_short(head: bytes, size: int) -> bool:
@@ -392,23 +609,29 @@ def _riff_cut_short(head: bytes, size: int) -> bool:
     return head.startswith(b"RIFF") and size < int.from_bytes(head[4:8], "little") + 8
 
 
-def _wav_truncation(p: Path) -> tuple[int, int] | None:
-    """Return (declared, present) bytes of a RIFF/WAVE data chunk cut short, else None."""
+def _chunk_truncation(p: Path) -> tuple[int, int] | None:
+    """Return (declared, present) bytes of a RIFF/WAVE ``data`` or AIFF ``SSND`` chunk cut short,
+    else None."""
     try:
         size = p.stat().st_size
         with open(p, "rb") as fh:
-            if fh.read(4) != b"RIFF":
+            magic = fh.read(4)
+            if magic == b"RIFF":
+                order, data_id, forms = "little", b"data", (b"WAVE",)
+            elif magic == b"FORM":
+                order, data_id, forms = "big", b"SSND", (b"AIFF", b"AIFC")
+            else:
                 return None
             fh.read(4)
-            if fh.read(4) != b"WAVE":
+            if fh.read(4) not in forms:
                 return None
             offset = 12
             for _ in range(10_000):
                 hdr = fh.read(8)
                 if len(hdr) < 8:
                     return None
-                chunk_id, chunk_size = hdr[:4], int.from_bytes(hdr[4:], "little")
-                if chunk_id == b"data":
+                chunk_id, chunk_size = hdr[:4], int.from_bytes(hdr[4:], order)
+                if chunk_id == data_id:
                     present = size - (offset + 8)
                     if chunk_size != 0xFFFFFFFF and chunk_size > present:
                         return chunk_size, max(present, 0)
@@ -679,6 +902,8 @@ def _load_text(p: Path, source: str, head: bytes, rate_hz: float | None,
             raise _err(source, "has a time column but no value columns")
         times = data[:, 0] * (scale or 1.0)
         fitted = _fit_rate(p, source, layout, times)
+        if rate_hz is None:
+            _check_file_rate(source, fitted, f"time column (step {1.0 / fitted:.3g} s) gives")
         if rate_hz is not None and _rates_disagree(fitted, rate_hz):
             raise _err(source, f"time column gives {fitted:.6g} Hz but the given rate is {rate_hz:.6g} Hz "
                                f"(more than 1 % apart)")
@@ -791,10 +1016,7 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
     ClippingWarning
         If integer-PCM kinds had to clip values outside -1..1.
     """
-    try:
-        target = Path(path)
-    except TypeError:
-        raise ParameterError(f"a capture path must be a string or a Path, not {type(path).__name__}") from None
+    target = check_output_path(path)
     source = str(path)
     if kind not in WRITE_KINDS:
         raise ParameterError(f"unknown capture kind {kind!r}; choose one of {', '.join(WRITE_KINDS)}")
@@ -863,6 +1085,48 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
     return target
 
 
+def check_output_path(path: str | os.PathLike) -> Path:
+    """``path`` as a Path if a file of that name can be created, as far as the name goes: each
+    component within the file system's name limit (``NAME_MAX``, 255 bytes on most) and the
+    whole within ``PATH_MAX``; else a one-line :class:`~readchan.errors.ParameterError`."""
+    try:
+        target = Path(path)
+    except TypeError:
+        raise ParameterError(f"an output path must be a string or a Path, not {type(path).__name__}") from None
+    shown = display_path(path)
+    parent = target.parent if str(target.parent) else Path(".")
+    name_max, path_max = _name_limits(parent)
+    for part in target.parts:
+        size = len(os.fsencode(part))
+        if size > name_max:
+            raise ParameterError(f"{shown[:60]}...: a name in the path is too long ({size} bytes; the file system "
+                                 f"allows {name_max})")
+    size = len(os.fsencode(os.path.abspath(target)))
+    if size >= path_max:
+        raise ParameterError(f"{shown[:60]}...: the path is too long ({size} bytes; the system allows {path_max - 1})")
+    return target
+
+
+def _name_limits(directory: Path) -> tuple[int, int]:
+    """(NAME_MAX, PATH_MAX) of the file system holding ``directory`` (255 and 4096 if unknown)."""
+    limits = []
+    for key, default in (("PC_NAME_MAX", 255), ("PC_PATH_MAX", 4096)):
+        try:
+            value = os.pathconf(directory, key)
+        except (OSError, ValueError, AttributeError):
+            value = -1
+        limits.append(value if value and value > 0 else default)
+    return limits[0], limits[1]
+
+
+def _temp_name(parent: Path, name: str, tag: str) -> str:
+    """``.<name>.<tag>.tmp``, the name shortened so the whole stays within NAME_MAX."""
+    name_max, _ = _name_limits(parent)
+    room = name_max - len(os.fsencode(f"..{tag}.tmp"))
+    raw = os.fsencode(name)[:max(room, 1)]
+    return f".{os.fsdecode(raw)}.{tag}.tmp"
+
+
 def _check_names(channel_names: Sequence[str] | None, n_channels: int) -> tuple[str, ...]:
     if channel_names is None:
         return _default_names(n_channels)
@@ -880,7 +1144,7 @@ def _check_names(channel_names: Sequence[str] | None, n_channels: int) -> tuple[
 
 def _make_temp(parent: Path, name: str, source: str) -> Path:
     for _ in range(100):
-        tmp = parent / f".{name}.{secrets.token_hex(4)}.tmp"
+        tmp = parent / _temp_name(parent, name, secrets.token_hex(4))
         try:
             fd = os.open(tmp, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o666)
         except FileExistsError:

@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 import os
 import sys
+import warnings
 from enum import Enum
 from pathlib import Path
 from typing import Optional
@@ -183,12 +184,13 @@ def synth(
                                "that undersamples the pulses."),
 ) -> None:
     """Synthesize a capture of known content and known impairments (one channel per track)."""
-    from readchan.capture import write_capture
+    from readchan.capture import check_output_path, write_capture
     from readchan.formats import parse_format
-    from readchan.synth import FrontEnd, Impairments, SpeedProfile, SynthSpec, synthesize
+    from readchan.synth import SAMPLE_LIMIT, FrontEnd, Impairments, SpeedProfile, SynthSpec, synthesize
     from readchan.synth.card import parse_bits, track_content
     from readchan.synth.head import KarlqvistPulse, LorentzianPulse
 
+    check_output_path(output)
     if output.exists() and not force:
         raise ParameterError(f"{output} exists; pass --force to overwrite")
     custom = parse_format(fmt) if fmt else None
@@ -218,7 +220,7 @@ def synth(
                      output=signal.value, seed=seed, front_end=fe)
     if not force:
         _refuse_undersampling(spec)
-    res = synthesize(spec)
+    res = synthesize(spec, max_samples=None if force else SAMPLE_LIMIT)
     names = [t.label.replace(" ", "") or f"ch{i}" for i, t in enumerate(tracks)]
     path = write_capture(output, res.samples, res.rate_hz, kind=kind.value, force=force, channel_names=names)
     err.print(f"wrote {path}: {len(tracks)} channel(s), {res.duration_s:.3f} s at {res.rate_hz:g} Hz, "
@@ -242,8 +244,14 @@ def _refuse_undersampling(spec) -> None:
                                  f"({smp.text().split(': ', 1)[1]}); raise the rate or pass --force")
 
 
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    """Python warnings as one line on stderr, ``readchan: warning: ...`` (no source line)."""
+    err.print(f"readchan: warning: {' '.join(str(message).split())}", highlight=False, markup=False)
+
+
 def main() -> None:
     """Console entry point: run the app and map errors to one-line messages and exit codes."""
+    warnings.showwarning = _show_warning
     try:
         rv = app(standalone_mode=False)
         sys.exit(rv if isinstance(rv, int) else 0)

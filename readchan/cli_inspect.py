@@ -20,6 +20,7 @@ from rich.text import Text
 
 from readchan.cli import (CAPTURES, CHANNEL, FORMAT, HIGHPASS, JSON, KIND, LOWPASS, NOTCH, RATE, TRACK, UNMASK, Kind,
                           _channels, _settings, app, err, out)
+from readchan.capture import check_output_path
 from readchan.diagnose import ChannelReport, ReadReport, noise_source_text
 from readchan.errors import ParameterError
 from readchan.fields import mask_text
@@ -80,11 +81,11 @@ def _plot_targets(plot: Path, captures: list[Path]) -> list[Path]:
     if not parent.is_dir():
         raise ParameterError(f"--plot: directory {str(parent)!r} does not exist")
     if len(captures) == 1:
-        return [plot]
+        return [check_output_path(plot)]
     names = [plot.with_name(f"{plot.stem}-{c.stem}{plot.suffix}") for c in captures]
     if len(set(names)) < len(names):
         names = [plot.with_name(f"{plot.stem}-{i}-{c.stem}{plot.suffix}") for i, c in enumerate(captures)]
-    return names
+    return [check_output_path(n) for n in names]
 
 
 # ---------------------------------------------------------------------------------------------

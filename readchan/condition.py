@@ -33,6 +33,53 @@ class ConditionSettings:
     notch_hz: tuple[float, ...] = ()
     notch_q: float = 8.0
 
+    def __post_init__(self) -> None:
+        # the upper limit of every corner is the capture's Nyquist frequency, checked in condition()
+        if self.highpass_hz is not None:
+            object.__setattr__(self, "highpass_hz", check_frequency("highpass_hz", self.highpass_hz, MIN_HIGHPASS_HZ,
+                                                                    allow_zero=True))
+        if self.lowpass_hz is not None:
+            object.__setattr__(self, "lowpass_hz", check_frequency("lowpass_hz", self.lowpass_hz, MIN_LOWPASS_HZ))
+        try:
+            notches = tuple(self.notch_hz)
+        except TypeError:
+            raise ParameterError(f"notch_hz must be a sequence of frequencies in Hz, was {self.notch_hz!r}") from None
+        object.__setattr__(self, "notch_hz", tuple(check_frequency("notch_hz", f, MIN_NOTCH_HZ) for f in notches))
+        q = _number("notch_q", self.notch_q)
+        if not 0.5 <= q <= 1000:
+            raise ParameterError(f"notch_q must be between 0.5 and 1000, was {self.notch_q!r}")
+
+
+MIN_HIGHPASS_HZ = 0.1
+"""Lowest baseline high-pass corner (Hz); 0 (or None) turns the high-pass off.  Below it the
+zero-phase filter's transient outlasts any capture."""
+MIN_LOWPASS_HZ = 10.0
+"""Lowest low-pass corner (Hz): far below the slowest pulse rate of any track and swipe."""
+MIN_NOTCH_HZ = 1.0
+"""Lowest notch frequency (Hz); the mains are at 50 or 60 Hz (16.7 Hz on some railways)."""
+
+
+def _number(name: str, value: object) -> float:
+    if isinstance(value, bool):
+        raise ParameterError(f"{name} must be a number, was {value!r}")
+    try:
+        return float(value)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        raise ParameterError(f"{name} must be a number, was {value!r}") from None
+
+
+def check_frequency(name: str, value: object, lowest_hz: float, *, allow_zero: bool = False) -> float:
+    """``value`` as a float if it is a finite frequency of at least ``lowest_hz`` (or 0 when
+    ``allow_zero``), else a :class:`ParameterError` naming ``name`` and the range."""
+    f = _number(name, value)
+    if allow_zero and f == 0:
+        return 0.0
+    if not math.isfinite(f) or f < lowest_hz:
+        off = " (0: off)" if allow_zero else ""
+        raise ParameterError(f"{name} must be a frequency of at least {lowest_hz:g} Hz and below the capture's "
+                             f"Nyquist frequency{off}, was {value!r}")
+    return f
+
 
 @dataclass(frozen=True)
 class Conditioned:
@@ -60,16 +107,17 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
     dc = float(np.median(x[:: max(1, x.size // 50_000)]))
     y = x - dc
     if settings.highpass_hz:
-        _check_corner("highpass", settings.highpass_hz, nyq)
+        _check_corner("highpass_hz", settings.highpass_hz, nyq)
         y = y - baseline(y, rate_hz, settings.highpass_hz)
     for f in settings.notch_hz:
+        _check_corner("notch frequency", f, nyq)
         for h in (1, 2, 3):
             fh = f * h
-            if fh < 0.9 * nyq:
+            if h == 1 or fh < 0.9 * nyq:
                 b, a = sps.iirnotch(fh, settings.notch_q * h, fs=rate_hz)
                 y = sps.filtfilt(b, a, y, padlen=min(y.size - 1, 3 * max(len(a), len(b))))
     if settings.lowpass_hz:
-        _check_corner("lowpass", settings.lowpass_hz, nyq)
+        _check_corner("lowpass_hz", settings.lowpass_hz, nyq)
         sos = sps.butter(4, settings.lowpass_hz, btype="lowpass", fs=rate_hz, output="sos")
         y = sps.sosfiltfilt(sos, y)
     return Conditioned(signal=np.ascontiguousarray(y), rate_hz=float(rate_hz), dc_offset=dc, channel=channel)
@@ -151,7 +199,8 @@ def refine(c: Conditioned, *, lowpass_hz: float | None = None, highpass_hz: floa
 
 def _check_corner(name: str, f_hz: float, nyq: float) -> None:
     if not math.isfinite(f_hz) or not 0 < f_hz < nyq:
-        raise ParameterError(f"{name} corner must be between 0 and {nyq:g} Hz (Nyquist), was {f_hz!r}")
+        raise ParameterError(f"{name} must be between 0 and {nyq:g} Hz (the capture's Nyquist frequency), "
+                             f"was {f_hz!r}")
 
 
 @dataclass(frozen=True)

@@ -6,13 +6,16 @@ produced, so that reports and diagnostics can point back into the capture.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field, replace
 from typing import Callable
 
 import numpy as np
 
-from readchan.capture import Capture
-from readchan.condition import ConditionSettings, Conditioned, condition, fit_hum, refine, signal_band_hz
+from readchan.capture import (Capture, NonPhysicalSampleWarning, check_rate_range, describe_outliers, display_path,
+                              repair_outliers)
+from readchan.condition import (MIN_NOTCH_HZ, ConditionSettings, Conditioned, check_frequency, condition, fit_hum,
+                                refine, signal_band_hz)
 from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, classify_kind, clipped_fraction,
                              detect_head, detect_logic, pulse_width_s)
 from readchan.density import TrackEvidence, clocking_pw50_cell, decide_track, leading_zeros
@@ -67,6 +70,15 @@ class DecodeSettings:
             raise ParameterError(f"threshold must be between 0.05 and 0.95, was {self.threshold!r}")
         if not 0.0 < self.loop_gain <= 1.0:
             raise ParameterError(f"loop gain must be in (0, 1], was {self.loop_gain!r}")
+        if isinstance(self.notch, str) and self.notch.strip().lower() in ("auto", "off"):
+            object.__setattr__(self, "notch", self.notch.strip().lower())
+        else:
+            try:
+                check_frequency("notch", self.notch, MIN_NOTCH_HZ)
+            except ParameterError:
+                raise ParameterError(f"notch must be auto, off or a mains frequency of at least {MIN_NOTCH_HZ:g} Hz "
+                                     f"and below the capture's Nyquist frequency, was {self.notch!r}") from None
+            object.__setattr__(self, "notch", float(self.notch))
 
 
 @dataclass(frozen=True)
@@ -82,6 +94,8 @@ class ChannelResult:
     hum_hz: float | None
     status: "ChannelStatus | None" = None
     """What the channel holds, and why it gave no read (:mod:`readchan.status`)."""
+    outliers: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    """Indices of the non-physical samples replaced before decoding (see :func:`decode_channel`)."""
 
 
 @dataclass(frozen=True)
@@ -259,7 +273,17 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
 
 def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = DecodeSettings(), *,
                    channel: int = 0, n_channels: int = 1, source: str = "") -> ChannelResult:
-    """Decode one channel's samples ``x`` at ``rate_hz``."""
+    """Decode one channel's samples ``x`` at ``rate_hz``.
+
+    Non-physical samples (:func:`readchan.capture.repair_outliers`) are replaced by
+    interpolation first, with one :class:`~readchan.capture.NonPhysicalSampleWarning` naming
+    their count and position; the result's ``outliers`` holds their indices."""
+    check_rate_range(rate_hz)
+    x, outliers = repair_outliers(x)
+    if outliers.size:
+        where = f"{display_path(source)}: " if source else ""
+        warnings.warn(f"{where}channel {channel}: {describe_outliers(outliers, rate_hz)}",
+                      NonPhysicalSampleWarning, stacklevel=2)
     kind = classify_kind(x) if settings.kind == "auto" else settings.kind
     cond = None
     hum = None
@@ -274,7 +298,7 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
     from readchan.status import channel_status
 
     status = channel_status(x, rate_hz, channel, tr, segs, reads, skipped, settings.fmt)
-    return ChannelResult(channel, kind, cond, tr, tuple(segs), reads, hum, status)
+    return ChannelResult(channel, kind, cond, tr, tuple(segs), reads, hum, status, outliers)
 
 
 def assign_tracks(reads: tuple[Read, ...], x: np.ndarray, rate_hz: float, settings: DecodeSettings, *,

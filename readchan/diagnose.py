@@ -67,7 +67,7 @@ import numpy as np
 from scipy.interpolate import CubicSpline
 from scipy.ndimage import median_filter
 
-from readchan.capture import Capture
+from readchan.capture import Capture, repair_outliers
 from readchan.condition import ConditionSettings, HumFit, condition, fit_hum
 from readchan.decode import ChannelResult, DecodeSettings, Read, between_pulses_mask, decode_channel, quiet_mask
 from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK, noise_rms
@@ -518,6 +518,8 @@ def inspect_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),
     for c in chans:
         x = cap.channel(c)
         res = decode_channel(x, cap.rate_hz, settings, channel=c, n_channels=cap.n_channels, source=cap.source)
+        if res.outliers.size:           # measure what was decoded: the channel with its faults repaired
+            x = repair_outliers(x)[0]
         out.append(inspect_channel(x, cap.rate_hz, res, highpass_hz=hp, units=cap.units, source=cap.source))
     return out
 

@@ -43,6 +43,7 @@ __all__ = [
 
 _PARITIES = ("odd", "even", "none")
 _MAX_CODEPOINT = 0x10FFFF
+_SURROGATES = (0xD800, 0xDFFF)
 
 
 def _check_format_fields(fmt: CharFormat) -> None:
@@ -57,6 +58,15 @@ def _check_format_fields(fmt: CharFormat) -> None:
     n_codes = 1 << fmt.data_bits
     if not isinstance(fmt.offset, int) or not 0 <= fmt.offset <= _MAX_CODEPOINT - n_codes + 1:
         raise FormatError(f"{where}: offset {fmt.offset!r} puts characters outside Unicode")
+    last = fmt.offset + n_codes - 1
+    if fmt.offset <= _SURROGATES[1] and last >= _SURROGATES[0]:
+        # surrogate code points are not characters: no text holding them can be printed or written
+        raise FormatError(
+            f"{where}: offset {fmt.offset:#x} maps codes to {fmt.offset:#x}..{last:#x}, which overlaps the "
+            f"surrogate code points {_SURROGATES[0]:#x}..{_SURROGATES[1]:#x} (not characters); choose an offset "
+            f"from 0 to {_SURROGATES[0] - n_codes:#x} or from {_SURROGATES[1] + 1:#x} to "
+            f"{_MAX_CODEPOINT - n_codes + 1:#x}"
+        )
     for label, code in (("start", fmt.start_code), ("end", fmt.end_code),
                         ("sep", fmt.separator_code)):
         if label == "sep" and code is None:

@@ -72,7 +72,9 @@ def plot_reports(reports: list[ChannelReport], path: str | Path, *, unmask: bool
 
 
 def _save(fig: Figure, path: Path, dpi: int) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=path.parent or Path("."))
+    # the temporary name stays within NAME_MAX however long the target's name is
+    prefix = "." + os.fsdecode(os.fsencode(path.name)[:200]) + "."
+    fd, tmp = tempfile.mkstemp(prefix=prefix, suffix=path.suffix, dir=path.parent or Path("."))
     os.close(fd)
     try:
         fig.savefig(tmp, dpi=dpi, format=path.suffix.lstrip(".").lower() or "png")

@@ -122,6 +122,7 @@ class Impairments:
         for name, (value, lo, hi) in checks.items():
             if not math.isfinite(value) or not lo <= value <= hi:
                 raise ParameterError(f"{name} must be between {lo} and {hi}, was {value!r}")
+            object.__setattr__(self, name, float(value) + 0.0)     # -0.0 becomes 0.0
         if self.snr_db is not None and (not math.isfinite(self.snr_db) or not -20 <= self.snr_db <= 200):
             raise ParameterError(f"snr_db must be between -20 and 200 dB, was {self.snr_db!r}")
         if self.highpass_hz is not None and (not math.isfinite(self.highpass_hz) or self.highpass_hz <= 0):
@@ -183,6 +184,8 @@ class SynthSpec:
                 raise ParameterError(f"{name} must be between 0 and 3600 s, was {v!r}")
         if self.output not in ("head", "flux"):
             raise ParameterError(f"output must be 'head' or 'flux', was {self.output!r}")
+        if isinstance(self.seed, bool) or not isinstance(self.seed, (int, np.integer)) or not 0 <= self.seed < 2 ** 63:
+            raise ParameterError(f"seed must be an integer from 0 to 2**63 - 1, was {self.seed!r}")
         self.chain.check_rate(self.rate_hz)
 
     @property
@@ -244,8 +247,41 @@ class SynthResult:
                      for p, r in zip(self.output_median_peak, self.output_noise_rms))
 
 
-def synthesize(spec: SynthSpec) -> SynthResult:
-    """Render ``spec`` into samples; see the module docstring for the model."""
+SAMPLE_LIMIT = 50_000_000
+"""Most samples (internal samples × channels) :func:`synthesize` renders unless told otherwise
+(``synth --force``): 400 MB per float64 array, of which rendering holds a few at once."""
+
+HARD_SAMPLE_LIMIT = 500_000_000
+"""Most samples rendered even when forced."""
+
+
+def estimate_samples(spec: SynthSpec) -> int:
+    """Samples :func:`synthesize` would render for ``spec`` (internal samples × channels), from
+    the card length, the speed profile, the swipes, pauses and the rate, before any is made."""
+    lengths = [FIRST_TRANSITION_M + (np.asarray(t.bits).size + 1) * t.cell_m / (1 + spec.impairments.density_error)
+               for t in spec.tracks]
+    card_m = max(CARD_LENGTH_M, max(lengths) + FIRST_TRANSITION_M)
+    swipe_s = float(spec.speed.time_of_position(np.array([card_m]), card_m)[0])
+    total_s = 2 * spec.lead_s + spec.swipes * swipe_s + (spec.swipes - 1) * spec.gap_s
+    n_out = math.ceil(total_s * spec.rate_hz) + 1
+    return ((n_out - 1) * spec.chain.internal_factor + 1) * len(spec.tracks)
+
+
+def synthesize(spec: SynthSpec, *, max_samples: int | None = SAMPLE_LIMIT) -> SynthResult:
+    """Render ``spec`` into samples; see the module docstring for the model.
+
+    Refuses (:class:`ParameterError`) a capture of more than ``max_samples`` samples
+    (:func:`estimate_samples`, checked before anything is computed; None: up to
+    :data:`HARD_SAMPLE_LIMIT`).
+    """
+    need = estimate_samples(spec)
+    limit = HARD_SAMPLE_LIMIT if max_samples is None else min(int(max_samples), HARD_SAMPLE_LIMIT)
+    if need > limit:
+        gb = need * 8 / 1e9
+        hint = "" if limit == HARD_SAMPLE_LIMIT else "; pass --force (max_samples=None) to render it anyway"
+        raise ParameterError(f"the capture would hold {need:,} samples ({gb:.1f} GB as float64), over the limit of "
+                             f"{limit:,}; lower the rate, the number of swipes, the pauses, or raise the speed or "
+                             f"density{hint}")
     rng = np.random.default_rng(spec.seed)
     imp = spec.impairments
     fe = spec.chain
@@ -408,6 +444,8 @@ __all__ = [
     "SpeedProfile",
     "SynthResult",
     "SynthSpec",
+    "SAMPLE_LIMIT",
     "TrackContent",
+    "estimate_samples",
     "synthesize",
 ]

@@ -41,4 +41,5 @@ def track_content(text: str | None = None, *, track: int = 1, fmt: CharFormat | 
     if lead < 4 or trail < 1 or lead > 10_000 or trail > 10_000:
         raise FormatError(f"clocking zeros must be 4..10000 leading and 1..10000 trailing, were {lead} and {trail}")
     stream = np.concatenate((np.zeros(lead, np.uint8), payload, np.zeros(trail, np.uint8)))
-    return TrackContent(stream, density_bpi or spec.density_bpi, f"track {track}")
+    density = spec.density_bpi if density_bpi is None else density_bpi    # 0 is refused, not replaced
+    return TrackContent(stream, density, f"track {track}")
