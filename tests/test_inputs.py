@@ -190,9 +190,9 @@ def test_density_of_zero_is_refused_not_replaced_by_the_default():
 
 
 @pytest.mark.parametrize("make", [lambda: KarlqvistPulse(gap_m=1e302), lambda: KarlqvistPulse(spacing_m=1e302),
-                                  lambda: KarlqvistPulse(transition_m=2e-3), lambda: LorentzianPulse(1e302)])
-def test_head_dimensions_beyond_a_millimetre_are_refused_naming_the_range(make):
-    with pytest.raises(ParameterError, match=r"1000 µm"):
+                                  lambda: KarlqvistPulse(transition_m=2e-2), lambda: LorentzianPulse(1e302)])
+def test_head_dimensions_beyond_ten_millimetres_are_refused_naming_the_range(make):
+    with pytest.raises(ParameterError, match=r"10000 µm"):
         make()
 
 

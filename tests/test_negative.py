@@ -27,11 +27,11 @@ def _noise_capture(kind: str, seed: int) -> tuple[np.ndarray, float]:
         x += rng.uniform(0.05, 0.5) * np.sin(2 * np.pi * f * t + rng.uniform(0, 6.3))
         x += rng.uniform(0.0, 0.1) * np.sin(2 * np.pi * 3 * f * t)
     if kind in ("pulses", "mixed"):
-        pulse = LorentzianPulse(1.0)
+        pulse = LorentzianPulse(1e-3)                  # a PW50 of 1 mm, swept past at 1 mm per width_s
         width_s = rng.uniform(30e-6, 600e-6)
         for _ in range(int(rng.integers(20, 600))):
             t0 = rng.uniform(0, t[-1])
-            x += rng.choice([-1.0, 1.0]) * rng.uniform(0.1, 0.8) * pulse.shape((t - t0) / width_s)
+            x += rng.choice([-1.0, 1.0]) * rng.uniform(0.1, 0.8) * pulse.shape((t - t0) / width_s * 1e-3)
     return x, rate
 
 

@@ -34,16 +34,17 @@ import numpy as np
 from readchan.errors import ParameterError
 
 
-MAX_DIMENSION_M = 1e-3
-"""Largest head gap, spacing, transition parameter or PW50 accepted (1 mm): a magnetic-stripe
-head's gap is about 10–25 µm and a 75 bpi bit cell 339 µm (common practice; ISO/IEC 7811-2)."""
+MAX_DIMENSION_M = 1e-2
+"""Largest head gap, spacing, transition parameter or PW50 accepted (10 mm): a magnetic-stripe
+head's gap is about 10–25 µm (common practice) and a 75 bpi bit cell 339 µm (ISO/IEC 7811-2);
+the limit leaves room for PW50s of several cells at low densities."""
 
 
 def _positive(name: str, value: float, *, allow_zero: bool = False) -> float:
     value = float(value)
     if not math.isfinite(value) or value < 0 or (value == 0 and not allow_zero) or value > MAX_DIMENSION_M:
-        low = "0" if allow_zero else "above 0"
-        raise ParameterError(f"{name} must be between {low} and {MAX_DIMENSION_M:g} m ({MAX_DIMENSION_M * 1e6:g} µm), "
+        low = "from 0" if allow_zero else "above 0"
+        raise ParameterError(f"{name} must be {low} to {MAX_DIMENSION_M:g} m ({MAX_DIMENSION_M * 1e6:g} µm), "
                              f"was {value!r}")
     return value + 0.0
 
