@@ -28,6 +28,14 @@ STATES = ("read", "no-activity", "irregular", "no-sentinel", "few-zeros")
 
 _RANK = {"irregular": 1, "no-sentinel": 2, "few-zeros": 3}
 
+ACTIVE_SIGMA = 6.0
+"""A detected pulse is activity when it stands above this many noise RMS (Gaussian noise
+reaches 6σ in 2·10⁻⁹ of samples): the detector also returns noise peaks."""
+
+MIN_ACTIVE = 24
+"""Pulses above the noise a channel needs to count as active (the segmenter's least read)."""
+
+
 @dataclass(frozen=True)
 class Skipped:
     """A segment of transitions that gave no read, and the stage it stopped at.
@@ -87,20 +95,26 @@ def channel_status(x: np.ndarray, rate_hz: float, channel: int, tr: Transitions,
                    fmt=None) -> ChannelStatus:
     """The state of a decoded channel from its transitions, segments, reads and the segments
     that gave none (``skipped``, from :func:`readchan.decode.reads_from`)."""
+    amp = np.abs(tr.amplitude)
+    strong = int(np.count_nonzero(amp > ACTIVE_SIGMA * tr.noise_rms)) if tr.kind == "head" else len(tr)
+    active = strong >= MIN_ACTIVE
     periods = [float(np.median(r.bits.period_s)) for r in reads if len(r.bits)]
     pw50 = [float(r.track_evidence.pw50_cell * np.median(r.bits.period_s)) for r in reads
             if r.track_evidence is not None and r.track_evidence.pw50_cell is not None and len(r.bits)]
     sampling = channel_sampling(rate_hz, period_s=periods, pw50_s=pw50,
-                                intervals_s=None if periods else pulse_intervals(tr))
+                                intervals_s=None if periods or not active else pulse_intervals(tr))
     clip = clipped_fraction(np.asarray(x, float)) if tr.kind == "head" and x.size else 0.0
     n = len(tr)
     recording = bool(reads) or any(s.stage in ("no-sentinel", "few-zeros") for s in skipped)
     if reads:
         return ChannelStatus(channel, "read", "", True, n, clip, sampling, tuple(skipped))
-    if not skipped:
+    if not skipped or (not active and not recording):
         state = "no-activity"
-        reason = (f"no activity above noise ({n} transition{'s' if n != 1 else ''}, "
-                  f"{'none' if not segs else 'no stretch'} long enough for a swipe)")
+        if tr.kind == "head":
+            reason = (f"no activity above noise ({n} transition{'s' if n != 1 else ''} detected, {strong} of them "
+                      f"above {ACTIVE_SIGMA:g}× the noise RMS; a swipe has at least {MIN_ACTIVE})")
+        else:
+            reason = f"no activity ({n} edge{'s' if n != 1 else ''}; a swipe has at least {MIN_ACTIVE})"
     else:
         best = max(skipped, key=lambda s: (_RANK[s.stage], s.regularity, s.n_bits))
         state = best.stage
