@@ -102,6 +102,7 @@ class Conditioned:
 def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings = ConditionSettings(),
               *, channel: int = 0) -> Conditioned:
     """Condition one channel of a head signal; see :class:`ConditionSettings`."""
+    check_condition_settings(settings, rate_hz)
     x = np.asarray(samples, dtype=float)
     nyq = rate_hz / 2
     dc = float(np.median(x[:: max(1, x.size // 50_000)]))
@@ -121,6 +122,18 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
         sos = sps.butter(4, settings.lowpass_hz, btype="lowpass", fs=rate_hz, output="sos")
         y = sps.sosfiltfilt(sos, y)
     return Conditioned(signal=np.ascontiguousarray(y), rate_hz=float(rate_hz), dc_offset=dc, channel=channel)
+
+
+def check_condition_settings(settings: ConditionSettings, rate_hz: float) -> None:
+    """Raise :class:`ParameterError` unless every corner and notch of ``settings`` lies below the
+    Nyquist frequency of ``rate_hz``."""
+    nyq = rate_hz / 2
+    if settings.highpass_hz:
+        _check_corner("highpass_hz", settings.highpass_hz, nyq)
+    for f in settings.notch_hz:
+        _check_corner("notch frequency", f, nyq)
+    if settings.lowpass_hz:
+        _check_corner("lowpass_hz", settings.lowpass_hz, nyq)
 
 
 def baseline(y: np.ndarray, rate_hz: float, corner_hz: float) -> np.ndarray:

@@ -6,6 +6,7 @@ produced, so that reports and diagnostics can point back into the capture.
 
 from __future__ import annotations
 
+import math
 import warnings
 from dataclasses import dataclass, field, replace
 from typing import Callable
@@ -14,8 +15,8 @@ import numpy as np
 
 from readchan.capture import (Capture, NonPhysicalSampleWarning, check_rate_range, describe_outliers, display_path,
                               repair_outliers)
-from readchan.condition import (MIN_NOTCH_HZ, ConditionSettings, Conditioned, check_frequency, condition, fit_hum,
-                                refine, signal_band_hz)
+from readchan.condition import (MIN_NOTCH_HZ, ConditionSettings, Conditioned, check_condition_settings, check_frequency,
+                                condition, fit_hum, refine, signal_band_hz)
 from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, classify_kind, clipped_fraction,
                              detect_head, detect_logic, pulse_width_s)
 from readchan.density import TrackEvidence, clocking_pw50_cell, decide_track, leading_zeros
@@ -271,6 +272,53 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
     return cond, tr, hum
 
 
+NOISE_BLOCK = 256
+"""Samples per block of the stationarity test of :func:`only_white_noise`."""
+
+
+def only_white_noise(x: np.ndarray, rate_hz: float) -> bool:
+    """True when a channel is stationary white Gaussian noise (or constant), so holds nothing
+    above its noise.  Three tests, each at about five standard deviations of what Gaussian
+    white noise itself scatters by (sampling statistics; common practice):
+
+    * stationary: no block of :data:`NOISE_BLOCK` samples has an RMS above the median block's
+      by more than (√(2 ln N) + 3)·s, with N blocks and s = 1/√(2·256) ≈ 4.4 % the scatter of
+      one block's RMS (√(2 ln N)·s is the expected largest excursion);
+    * Gaussian: the kurtosis within 2.5–3.6 (3; it scatters by √(24/n) over n samples);
+    * white: the Welch spectrum (K Hann-windowed 256-sample segments, K ≤ 4096) within
+      1 ± 5/√K of its median at every frequency but DC (each bin scatters by 1/√K).
+
+    A swipe raises the RMS where it is (by 1.5× for a track 2 swipe at 8 dB SNR, where decoding
+    already fails; README, *Benchmarks*), a capture that is all swipe has a band edge and a
+    peaky or flat-topped distribution, and hum is a spectral line; failing any test only means
+    the channel is decoded in full.  Channels under 12,800 samples (50 segments) are never
+    called noise."""
+    n = x.size
+    nb = n // NOISE_BLOCK
+    if nb < 50:
+        return False
+    y = x - float(np.median(x[:: max(1, n // 100_000)]))
+    if not np.any(y):
+        return True                       # constant: an idle channel
+    r = np.sqrt(np.mean(y[: nb * NOISE_BLOCK].reshape(nb, NOISE_BLOCK) ** 2, axis=1))
+    med = float(np.median(r))
+    spread = (math.sqrt(2.0 * math.log(nb)) + 3.0) / math.sqrt(2.0 * NOISE_BLOCK)
+    if not med > 0 or float(r.max()) > (1.0 + spread) * med:
+        return False
+    m2 = float(np.mean(y * y))
+    kurtosis = float(np.mean(y ** 4)) / (m2 * m2)
+    if not 2.5 <= kurtosis <= 3.6:
+        return False
+    seg = 256                             # Welch: Hann-windowed segments, no overlap, one FFT call
+    k = min(n // seg, 4096)
+    starts = np.linspace(0, n - seg, k).astype(np.int64)
+    frames = y[starts[:, None] + np.arange(seg)] * np.hanning(seg)
+    p = np.mean(np.abs(np.fft.rfft(frames, axis=1)) ** 2, axis=0)[1:-1]
+    ref = float(np.median(p))
+    tol = 5.0 / math.sqrt(k)
+    return bool(ref > 0 and p.min() > (1.0 - tol) * ref and p.max() < (1.0 + tol) * ref)
+
+
 def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = DecodeSettings(), *,
                    channel: int = 0, n_channels: int = 1, source: str = "") -> ChannelResult:
     """Decode one channel's samples ``x`` at ``rate_hz``.
@@ -289,6 +337,13 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
     hum = None
     if kind == "logic":
         tr = detect_logic(x, rate_hz)
+    elif only_white_noise(x, rate_hz):
+        # nothing above the noise: conditioned (which checks the settings against the rate),
+        # but no detection, which would only time thousands of noise peaks
+        check_condition_settings(settings.condition, rate_hz)
+        z = np.zeros(0)
+        tr = Transitions(z, np.zeros(0, np.int64), z, z, np.zeros(0, np.uint8), float(rate_hz), "head",
+                         float(np.std(x)))
     else:
         cond, tr, hum = _detect_head_channel(x, rate_hz, settings, channel)
     segs = segment(tr)

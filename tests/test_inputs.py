@@ -15,7 +15,7 @@ import pytest
 import soundfile as sf
 
 from conftest import run_cli, synth_capture
-from readchan.capture import (MAX_SAMPLES, RATE_RANGE_HZ, NonPhysicalSampleWarning, TruncatedCaptureWarning,
+from readchan.capture import (MAX_SAMPLES, RATE_RANGE_HZ, Capture, NonPhysicalSampleWarning, TruncatedCaptureWarning,
                               check_output_path, load_capture, repair_outliers, write_capture)
 from readchan.condition import ConditionSettings
 from readchan.decode import DecodeSettings, decode_capture, decode_channel
@@ -408,3 +408,46 @@ def test_error_about_a_name_that_is_not_utf8_is_printable(tmp_path):
     message = str(e.value)
     message.encode("utf-8")
     assert "caf\\xe9.wav" in message
+
+
+# --------------------------------------------------------------------------- channels without activity
+
+
+@pytest.mark.parametrize("make", [lambda rng: np.zeros(20_000), lambda rng: np.full(20_000, 0.3),
+                                  lambda rng: rng.normal(0.0, 1e-3, 20_000),
+                                  lambda rng: np.round(rng.normal(0.0, 2.0, 20_000)) / 32768])
+def test_a_channel_of_white_noise_or_a_constant_is_reported_as_no_activity_without_detection(make):
+    result = decode_channel(make(np.random.default_rng(7)), 48_000.0)
+    assert len(result.transitions) == 0 and result.reads == ()
+    assert result.status.state == "no-activity"
+
+
+@pytest.mark.parametrize("track, text", [(1, TEXT), (2, ";9912345678901239=29121010000000000?")])
+def test_a_weak_swipe_in_a_long_noise_capture_is_not_taken_for_noise(track, text):
+    # 6 dB SNR, below where decoding fails (README, Benchmarks): the swipe still raises the RMS
+    from readchan.decode import only_white_noise
+
+    for seed in range(3):
+        cap, _ = synth_capture({track: text}, imp=Impairments(snr_db=6.0), seed=seed, lead_s=1.0)
+        assert not only_white_noise(cap.channel(0), cap.rate_hz)
+
+
+def test_band_limited_noise_is_decoded_in_full_not_called_white():
+    from readchan.decode import only_white_noise
+
+    x = np.convolve(np.random.default_rng(2).normal(size=20_000), np.ones(4) / 4, "same")
+    assert not only_white_noise(x, 48_000.0)
+
+
+def test_settings_are_still_checked_against_nyquist_on_a_noise_channel():
+    with pytest.raises(ParameterError, match="Nyquist"):
+        decode_channel(np.zeros(20_000), 48_000.0, DecodeSettings(condition=ConditionSettings(lowpass_hz=30_000.0)))
+
+
+def test_a_wide_capture_of_noise_columns_still_reads_its_swipe(swipe):
+    x, rate = swipe
+    cols = np.round(np.random.default_rng(3).normal(0.0, 2.0, (x.size, 40))) / 32768
+    cols[:, 0] = x
+    results = decode_capture(Capture(cols, rate))
+    assert [r.frame.text for r in reads_of(results) if r.valid] == [TEXT]
+    assert [ch.status.state for ch in results[1:]] == ["no-activity"] * 39
