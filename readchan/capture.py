@@ -31,7 +31,6 @@ from __future__ import annotations
 import math
 import os
 import re
-import secrets
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -40,6 +39,7 @@ from typing import Iterator, Sequence
 import numpy as np
 import soundfile as sf
 
+from readchan.atomic import atomic_output, check_path_length
 from readchan.errors import CaptureError, ParameterError
 
 __all__ = [
@@ -913,9 +913,9 @@ def _load_text(p: Path, source: str, head: bytes, rate_hz: float | None,
     else:
         if rate_hz is None:
             if data.shape[1] == 1:
-                raise _err(source, "has a single column and no time column; pass --rate to give the sample rate")
+                raise _err(source, "has a single column and no time column; pass --rate-hz to give the sample rate")
             raise _err(source, "has no time column (the first column is not named time and is not increasing); "
-                               "pass --rate to give the sample rate")
+                               "pass --rate-hz to give the sample rate")
         rate = rate_hz
         values = data
         value_names, value_units = names, units
@@ -976,7 +976,9 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
 
     The data go to a temporary file in the target's directory which is then
     renamed into place, so a failure never leaves half a file behind nor
-    destroys an existing one.
+    destroys an existing one (:func:`readchan.atomic.atomic_output`: only a
+    regular file, or a link to one, is ever replaced; the file gets the
+    user's umask; SIGTERM/SIGHUP remove the temporary file).
 
     Parameters
     ----------
@@ -1009,7 +1011,8 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
         For an unknown kind, a kind that contradicts the file extension, a bad
         rate, samples of the wrong shape or holding NaN/Inf, or bad names.
     CaptureError
-        If the file exists and ``force`` is false, or it cannot be written.
+        If the file exists and ``force`` is false, is not a regular file
+        (device, FIFO, socket, directory), or it cannot be written.
 
     Warns
     -----
@@ -1053,17 +1056,8 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
                 warnings.warn(f"{source}: {outside} samples outside -1..1 were clipped for {kind}",
                               ClippingWarning, stacklevel=2)
 
-    # Checks on the target before any byte is written.
-    if target.is_dir():
-        raise _err(source, "is a directory")
-    parent = target.parent
-    if not parent.is_dir():
-        raise _err(source, f"directory {str(parent)!r} does not exist")
-    if target.exists() and not force:
-        raise _err(source, "exists; pass --force to overwrite")
-
-    tmp = _make_temp(parent, target.name, source)
-    try:
+    # The target is checked before any byte is written; see readchan.atomic for the rules.
+    with atomic_output(target, force=force, error=CaptureError) as tmp:
         if kind in _AUDIO_KINDS:
             fmt, subtype = _AUDIO_KINDS[kind]
             try:
@@ -1072,59 +1066,20 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
                 raise _err(source, f"cannot write {kind} ({_soundfile_reason(exc)})") from None
         else:
             _write_csv(tmp, data, rate, names)
-        _commit(tmp, target, force, source)
-    except OSError as exc:
-        raise _err(source, f"cannot write file ({exc.strerror or exc})") from None
-    finally:
-        try:
-            tmp.unlink()
-        except FileNotFoundError:
-            pass
-        except OSError:
-            pass
     return target
 
 
 def check_output_path(path: str | os.PathLike) -> Path:
     """``path`` as a Path if a file of that name can be created, as far as the name goes: each
     component within the file system's name limit (``NAME_MAX``, 255 bytes on most) and the
-    whole within ``PATH_MAX``; else a one-line :class:`~readchan.errors.ParameterError`."""
+    whole within ``PATH_MAX``; else a one-line :class:`~readchan.errors.ParameterError`.
+    (The rules on the file itself are :func:`readchan.atomic.check_output_path`'s.)"""
     try:
         target = Path(path)
     except TypeError:
         raise ParameterError(f"an output path must be a string or a Path, not {type(path).__name__}") from None
-    shown = display_path(path)
-    parent = target.parent if str(target.parent) else Path(".")
-    name_max, path_max = _name_limits(parent)
-    for part in target.parts:
-        size = len(os.fsencode(part))
-        if size > name_max:
-            raise ParameterError(f"{shown[:60]}...: a name in the path is too long ({size} bytes; the file system "
-                                 f"allows {name_max})")
-    size = len(os.fsencode(os.path.abspath(target)))
-    if size >= path_max:
-        raise ParameterError(f"{shown[:60]}...: the path is too long ({size} bytes; the system allows {path_max - 1})")
+    check_path_length(target, error=ParameterError)
     return target
-
-
-def _name_limits(directory: Path) -> tuple[int, int]:
-    """(NAME_MAX, PATH_MAX) of the file system holding ``directory`` (255 and 4096 if unknown)."""
-    limits = []
-    for key, default in (("PC_NAME_MAX", 255), ("PC_PATH_MAX", 4096)):
-        try:
-            value = os.pathconf(directory, key)
-        except (OSError, ValueError, AttributeError):
-            value = -1
-        limits.append(value if value and value > 0 else default)
-    return limits[0], limits[1]
-
-
-def _temp_name(parent: Path, name: str, tag: str) -> str:
-    """``.<name>.<tag>.tmp``, the name shortened so the whole stays within NAME_MAX."""
-    name_max, _ = _name_limits(parent)
-    room = name_max - len(os.fsencode(f"..{tag}.tmp"))
-    raw = os.fsencode(name)[:max(room, 1)]
-    return f".{os.fsdecode(raw)}.{tag}.tmp"
 
 
 def _check_names(channel_names: Sequence[str] | None, n_channels: int) -> tuple[str, ...]:
@@ -1140,35 +1095,6 @@ def _check_names(channel_names: Sequence[str] | None, n_channels: int) -> tuple[
             raise ParameterError(f"channel name {name!r} is not usable in a CSV header "
                                  f"(empty, numeric, or holds a delimiter, quote or comment mark)")
     return names
-
-
-def _make_temp(parent: Path, name: str, source: str) -> Path:
-    for _ in range(100):
-        tmp = parent / _temp_name(parent, name, secrets.token_hex(4))
-        try:
-            fd = os.open(tmp, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o666)
-        except FileExistsError:
-            continue
-        except OSError as exc:
-            raise _err(source, f"cannot create a file in {str(parent)!r} ({exc.strerror or exc})") from None
-        os.close(fd)
-        return tmp
-    raise _err(source, f"cannot create a temporary file in {str(parent)!r}")
-
-
-def _commit(tmp: Path, target: Path, force: bool, source: str) -> None:
-    """Move the finished temporary file into place; never replace a file unless forced."""
-    if force:
-        os.replace(tmp, target)
-        return
-    try:
-        os.link(tmp, target)           # fails if the target appeared meanwhile
-    except FileExistsError:
-        raise _err(source, "exists; pass --force to overwrite") from None
-    except OSError:
-        if target.exists():            # file systems without hard links
-            raise _err(source, "exists; pass --force to overwrite") from None
-        os.replace(tmp, target)
 
 
 def _write_csv(tmp: Path, data: np.ndarray, rate: float, names: tuple[str, ...]) -> None:

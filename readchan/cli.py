@@ -1,7 +1,14 @@
 """The command line: parse, call the library, render.  Exit codes are mapped here, once.
 
 Exit codes: 0 every read valid; 1 data found, not all valid; 2 bad input or usage;
-3 no data found; 4 internal error (a bug: please report it).
+3 no data found; 4 internal error (a bug: please report it); 141 standard output closed
+early (``readchan decode ... | head``), the rest of the output dropped quietly.
+
+Vocabulary (the same in every command): units in option names (``--rate-hz``,
+``--speed-cm-s``); ``--signal`` is the kind of signal a file holds, ``--file-type`` the kind
+of file written; ``--head-gap-um`` is the head's gap, ``--pause-s`` the time between swipes.
+Old spellings (``--rate``, ``--kind``, ``--gap-um``, ``--gap-s``, sweep's ``snr_db``...) are
+hidden options that still work for one release, with a one-line deprecation warning.
 """
 
 from __future__ import annotations
@@ -17,16 +24,88 @@ from typing import Optional
 import typer
 from rich.console import Console
 
-from readchan.errors import EXIT_BAD_INPUT, ParameterError, ReadchanError
+from typer.core import TyperGroup
 
-EXIT_INTERNAL = 4
+from readchan import __version__
+from readchan.errors import EXIT_BAD_INPUT, EXIT_INTERNAL, EXIT_PIPE_CLOSED, ParameterError, ReadchanError
 
-app = typer.Typer(no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
+JSON_SCHEMA_VERSION = 1
+"""Version of the JSON documents (the ``schema`` key: ``readchan.<command>/<version>``).  Keys
+are only ever added within a version; a key renamed or removed, or a meaning changed, makes a
+new version."""
+
+
+class _StdoutClosed(Exception):
+    """Standard output went away (the reader of a pipe quit); not an OSError, so that click
+    passes it through instead of handling it its own way."""
+
+
+class _Group(TyperGroup):
+    def invoke(self, ctx):
+        try:
+            return super().invoke(ctx)
+        except BrokenPipeError:
+            raise _StdoutClosed() from None
+
+
+app = typer.Typer(cls=_Group, no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False,
                   help="Decode, diagnose and synthesize magnetic read-channel captures (F2F magnetic stripe).")
-out = Console()
+
+
+class _Console(Console):
+    def on_broken_pipe(self) -> None:
+        """A closed pipe ends the run through :func:`main` (exit code 141), not rich's exit 1;
+        what was waiting to be written is dropped."""
+        del self._buffer[:]
+        raise _StdoutClosed()
+
+
+out = _Console()
 if not out.is_terminal:
-    out = Console(width=120)
-err = Console(stderr=True, soft_wrap=True)
+    out = _Console(width=120)
+err = _Console(stderr=True, soft_wrap=True)
+
+
+def warn_line(message: str) -> None:
+    """One warning line on stderr: ``readchan: warning: ...``."""
+    err.print(f"readchan: warning: {' '.join(str(message).split())}", highlight=False, markup=False)
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    """``warnings.showwarning`` for the command line: one line, no source line.  Warnings of
+    other libraries (numpy, ...) carry their category's name."""
+    text = str(message)
+    if not getattr(category, "__module__", "").startswith("readchan"):
+        text += f" ({category.__name__})"
+    warn_line(text)
+
+
+def renamed(old: str, new: str, old_value, new_value, default=None):
+    """The value of an option that was renamed: the new spelling's, or, when only the old
+    spelling was given, the old one's with a one-line deprecation warning."""
+    if old_value is None:
+        return new_value
+    if new_value != default:
+        raise ParameterError(f"{old} is the old spelling of {new}; give only {new}")
+    warn_line(f"{old} is deprecated and goes in the next release; use {new}")
+    return old_value
+
+
+def schema(command: str) -> str:
+    """The ``schema`` value of a command's JSON document."""
+    return f"readchan.{command}/{JSON_SCHEMA_VERSION}"
+
+
+def _version(value: bool) -> None:
+    if value:
+        out.print(f"readchan {__version__}", highlight=False, markup=False)
+        raise typer.Exit(0)
+
+
+@app.callback()
+def _app(version: bool = typer.Option(False, "--version", callback=_version, is_eager=True,
+                                      help="Print the version and exit.")) -> None:
+    """Decode, diagnose and synthesize magnetic read-channel captures (F2F magnetic stripe)."""
 
 
 class Kind(str, Enum):
@@ -64,7 +143,7 @@ class Output(str, Enum):
     flux = "flux"
 
 
-def _settings(fmt: str, kind: Kind, track: Optional[int], notch: str, lowpass_hz: Optional[float],
+def _settings(fmt: str, kind: Kind | str, track: Optional[int], notch: str, lowpass_hz: Optional[float],
               highpass_hz: float):
     from readchan.condition import ConditionSettings
     from readchan.decode import DecodeSettings
@@ -78,7 +157,7 @@ def _settings(fmt: str, kind: Kind, track: Optional[int], notch: str, lowpass_hz
     else:
         notch_v = notch
     cs = ConditionSettings(highpass_hz=highpass_hz or None, lowpass_hz=lowpass_hz)
-    return DecodeSettings(fmt=parse_format(fmt), kind=kind.value, track=track, condition=cs, notch=notch_v)
+    return DecodeSettings(fmt=parse_format(fmt), kind=Kind(kind).value, track=track, condition=cs, notch=notch_v)
 
 
 def _channels(channel: Optional[list[int]]):
@@ -90,9 +169,12 @@ CAPTURES = typer.Argument(..., help="Capture files: WAV/FLAC/AIFF audio or CSV."
 FORMAT = typer.Option("auto", "--format", "-f",
                       help="Character format: auto, iso-alpha, iso-bcd, track1..3, or custom:bits=..,parity=..,...")
 CHANNEL = typer.Option(None, "--channel", "-c", help="Channel(s) to read, from 0 (default all).")
-KIND = typer.Option(Kind.auto, help="Signal kind: head pulses, logic-level edges, or auto-detect.")
+SIGNAL = typer.Option(Kind.auto, "--signal", help="Signal the capture holds: head pulses, logic-level edges, "
+                                                    "or auto-detect.")
+SIGNAL_OLD = typer.Option(None, "--kind", hidden=True, help="Old spelling of --signal.")
 TRACK = typer.Option(None, min=1, max=3, help="ISO track the channel holds (for the density).")
-RATE = typer.Option(None, "--rate", help="Sample rate in Hz for CSV files with no time column.")
+RATE_HZ = typer.Option(None, "--rate-hz", help="Sample rate in Hz for CSV files with no time column.")
+RATE_OLD = typer.Option(None, "--rate", hidden=True, help="Old spelling of --rate-hz.")
 NOTCH = typer.Option("auto", help="Mains hum removal: auto, off, or a notch frequency in Hz.")
 LOWPASS = typer.Option(None, "--lowpass-hz", help="Optional low-pass corner in Hz.")
 HIGHPASS = typer.Option(20.0, "--highpass-hz", help="Baseline-removal high-pass corner in Hz (0: off).")
@@ -105,20 +187,24 @@ def decode(
     captures: list[Path] = CAPTURES,
     fmt: str = FORMAT,
     channel: Optional[list[int]] = CHANNEL,
-    kind: Kind = KIND,
+    signal: Kind = SIGNAL,
     track: Optional[int] = TRACK,
-    rate: Optional[float] = RATE,
+    rate_hz: Optional[float] = RATE_HZ,
     notch: str = NOTCH,
     lowpass_hz: Optional[float] = LOWPASS,
     highpass_hz: float = HIGHPASS,
     as_json: bool = JSON,
     unmask: bool = UNMASK,
+    kind_old: Optional[Kind] = SIGNAL_OLD,
+    rate_old: Optional[float] = RATE_OLD,
 ) -> None:
     """Decode the tracks held in CAPTURE files: characters, parity, LRC and fields."""
     from readchan.capture import load_capture
     from readchan.decode import decode_capture
     from readchan.render import channel_dict, exit_code, print_decode, read_dict, reads_of, warning_lines
 
+    kind = renamed("--kind", "--signal", kind_old, signal, Kind.auto)
+    rate = renamed("--rate", "--rate-hz", rate_old, rate_hz)
     settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz)
     all_reads, all_results, channels = [], [], []
     for path in captures:
@@ -132,7 +218,8 @@ def decode(
         if not as_json:
             print_decode(out, str(path), results, unmask=unmask)
     if as_json:
-        print(json.dumps({"reads": [read_dict(r, unmask=unmask) for r in all_reads], "channels": channels}, indent=2))
+        print(json.dumps({"schema": schema("decode"), "reads": [read_dict(r, unmask=unmask) for r in all_reads],
+                          "channels": channels}, indent=2))
     raise typer.Exit(exit_code(all_reads, all_results))
 
 
@@ -146,10 +233,11 @@ def synth(
     fmt: Optional[str] = typer.Option(None, "--format", "-f", help="Character format for --track1 text (custom formats)."),
     density_bpi: Optional[float] = typer.Option(None, "--density-bpi", help="Recording density in bpi (all tracks)."),
     speed_cm_s: float = typer.Option(30.0, "--speed-cm-s", help="Mean swipe speed in cm/s."),
-    profile: Profile = typer.Option(Profile.constant, help="Speed profile along the card."),
+    profile: Profile = typer.Option(Profile.swipe, help="Speed profile along the card (swipe and ramp take "
+                                                        "--variation; with none, every profile is constant)."),
     variation: float = typer.Option(0.0, help="Speed variation along the card, fraction of the mean (ramp: ±; swipe: ±)."),
     pulse: PulseKind = typer.Option(PulseKind.karlqvist, help="Isolated-pulse model."),
-    gap_um: float = typer.Option(12.0, "--gap-um", help="Karlqvist head gap g in µm."),
+    head_gap_um: float = typer.Option(12.0, "--head-gap-um", help="Karlqvist head gap g in µm."),
     spacing_um: float = typer.Option(5.0, "--spacing-um", help="Head-to-medium spacing d in µm."),
     transition_um: float = typer.Option(15.0, "--transition-um", help="Arctan transition parameter a in µm."),
     pw50_um: Optional[float] = typer.Option(None, "--pw50-um", help="Lorentzian PW50 in µm (with --pulse lorentzian)."),
@@ -176,23 +264,28 @@ def synth(
     reverse: bool = typer.Option(False, help="Swipe the card backwards."),
     edge_pulses: bool = typer.Option(False, "--edge-pulses", help="Stripe magnetised to the card's edges: a half-size pulse at each."),
     swipes: int = typer.Option(1, help="Number of swipes in the capture."),
-    gap_s: float = typer.Option(0.25, "--gap-s", help="Quiet time between swipes in seconds."),
+    pause_s: float = typer.Option(0.25, "--pause-s", help="Quiet time between swipes in seconds."),
     signal: Output = typer.Option(Output.head, help="head: pickup voltage; flux: magnetisation square wave (coil drive)."),
-    kind: WriteKind = typer.Option(WriteKind.wav16, "--kind", help="Output file kind."),
+    file_type: WriteKind = typer.Option(WriteKind.wav16, "--file-type", help="Type of the file written."),
     seed: int = typer.Option(0, help="Random seed."),
-    force: bool = typer.Option(False, help="Overwrite OUTPUT if it exists, and write it even at a sample rate "
-                               "that undersamples the pulses."),
+    force: bool = typer.Option(False, help="Overwrite OUTPUT if it exists (a regular file only), and write it even "
+                               "at a sample rate that undersamples the pulses."),
+    gap_um_old: Optional[float] = typer.Option(None, "--gap-um", hidden=True, help="Old spelling of --head-gap-um."),
+    gap_s_old: Optional[float] = typer.Option(None, "--gap-s", hidden=True, help="Old spelling of --pause-s."),
+    kind_old: Optional[WriteKind] = typer.Option(None, "--kind", hidden=True, help="Old spelling of --file-type."),
 ) -> None:
     """Synthesize a capture of known content and known impairments (one channel per track)."""
-    from readchan.capture import check_output_path, write_capture
+    from readchan.atomic import check_output_path
+    from readchan.capture import write_capture
     from readchan.formats import parse_format
     from readchan.synth import SAMPLE_LIMIT, FrontEnd, Impairments, SpeedProfile, SynthSpec, synthesize
     from readchan.synth.card import parse_bits, track_content
     from readchan.synth.head import KarlqvistPulse, LorentzianPulse
 
-    check_output_path(output)
-    if output.exists() and not force:
-        raise ParameterError(f"{output} exists; pass --force to overwrite")
+    gap_um = renamed("--gap-um", "--head-gap-um", gap_um_old, head_gap_um, 12.0)
+    gap_s = renamed("--gap-s", "--pause-s", gap_s_old, pause_s, 0.25)
+    kind = renamed("--kind", "--file-type", kind_old, file_type, WriteKind.wav16)
+    check_output_path(output, force=force)   # before the work: exists, not a regular file, no directory
     custom = parse_format(fmt) if fmt else None
     tracks = []
     for n, text in ((1, track1), (2, track2), (3, track3)):
@@ -206,7 +299,7 @@ def synth(
         head = LorentzianPulse(pw50_m=(pw50_um if pw50_um is not None else 42.0) * 1e-6)
     else:
         if pw50_um is not None:
-            raise ParameterError("--pw50-um goes with --pulse lorentzian; the Karlqvist pulse takes --gap-um, --spacing-um, --transition-um")
+            raise ParameterError("--pw50-um goes with --pulse lorentzian; the Karlqvist pulse takes --head-gap-um, --spacing-um, --transition-um")
         head = KarlqvistPulse(gap_um * 1e-6, spacing_um * 1e-6, transition_um * 1e-6)
     imp = Impairments(density_error=density_error, jitter=jitter, snr_db=snr_db, hum_hz=hum_hz, hum_level=hum_level,
                       wander_level=wander_level, dc_offset=dc_offset, clip=clip,
@@ -244,35 +337,61 @@ def _refuse_undersampling(spec) -> None:
                                  f"({smp.text().split(': ', 1)[1]}); raise the rate or pass --force")
 
 
-def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
-    """Python warnings as one line on stderr, ``readchan: warning: ...`` (no source line)."""
-    err.print(f"readchan: warning: {' '.join(str(message).split())}", highlight=False, markup=False)
-
-
 def main() -> None:
-    """Console entry point: run the app and map errors to one-line messages and exit codes."""
-    warnings.showwarning = _show_warning
+    """Console entry point: run the app and map errors to one-line messages and exit codes.
+
+    Python warnings become one line each (``readchan: warning: ...``); a closed standard
+    output ends the run quietly with exit code 141.
+    """
+    with warnings.catch_warnings():
+        warnings.showwarning = _show_warning
+        try:
+            code = _run()
+            sys.stdout.flush()
+        except (_StdoutClosed, BrokenPipeError):
+            code = _stdout_closed()
+    sys.exit(code)
+
+
+def _stdout_closed() -> int:
+    """The reader of our standard output has gone: drop what is left, quietly.
+
+    As the Python documentation advises (signal module, "Note on SIGPIPE"), standard output is
+    pointed at the null device so that the interpreter's last flush cannot fail again."""
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    try:
+        os.dup2(devnull, sys.stdout.fileno())
+    except (AttributeError, OSError, ValueError):      # not a real file (embedded, tests)
+        sys.stdout = open(os.devnull, "w")
+    finally:
+        os.close(devnull)
+    return EXIT_PIPE_CLOSED
+
+
+def _run() -> int:
     try:
         rv = app(standalone_mode=False)
-        sys.exit(rv if isinstance(rv, int) else 0)
+        return rv if isinstance(rv, int) else 0
     except typer.Exit as e:
-        sys.exit(e.exit_code)
+        return e.exit_code
+    except _StdoutClosed:
+        raise
     except ReadchanError as e:
         err.print(f"readchan: error: {e}", highlight=False, markup=False)
-        sys.exit(e.exit_code)
+        return e.exit_code
     except KeyboardInterrupt:
-        sys.exit(130)
+        return 130
     except Exception as e:  # click usage errors and anything unforeseen
         if hasattr(e, "format_message") and hasattr(e, "exit_code"):   # click/typer usage errors
             err.print(f"readchan: error: {e.format_message()}", highlight=False, markup=False)
-            sys.exit(EXIT_BAD_INPUT)
+            return EXIT_BAD_INPUT
         if type(e).__name__ == "Abort":
-            sys.exit(130)
+            return 130
         if os.environ.get("READCHAN_DEBUG"):
             raise
         err.print(f"readchan: internal error: {type(e).__name__}: {e} (set READCHAN_DEBUG=1 for details)",
                   highlight=False, markup=False)
-        sys.exit(EXIT_INTERNAL)
+        return EXIT_INTERNAL
 
 
 # Further commands live in their own modules and register themselves on ``app``.

@@ -18,9 +18,8 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from readchan.cli import (CAPTURES, CHANNEL, FORMAT, HIGHPASS, JSON, KIND, LOWPASS, NOTCH, RATE, TRACK, UNMASK, Kind,
-                          _channels, _settings, app, err, out)
-from readchan.capture import check_output_path
+from readchan.cli import (CAPTURES, CHANNEL, FORMAT, HIGHPASS, JSON, LOWPASS, NOTCH, RATE_HZ, RATE_OLD, SIGNAL,
+                          SIGNAL_OLD, TRACK, UNMASK, Kind, _channels, _settings, app, err, out, renamed, schema)
 from readchan.diagnose import ChannelReport, ReadReport, noise_source_text
 from readchan.errors import ParameterError
 from readchan.fields import mask_text
@@ -35,9 +34,9 @@ def inspect(
     captures: list[Path] = CAPTURES,
     fmt: str = FORMAT,
     channel: Optional[list[int]] = CHANNEL,
-    kind: Kind = KIND,
+    signal: Kind = SIGNAL,
     track: Optional[int] = TRACK,
-    rate: Optional[float] = RATE,
+    rate_hz: Optional[float] = RATE_HZ,
     notch: str = NOTCH,
     lowpass_hz: Optional[float] = LOWPASS,
     highpass_hz: float = HIGHPASS,
@@ -45,14 +44,19 @@ def inspect(
     unmask: bool = UNMASK,
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write plots to this .png (.pdf, .svg) file; with "
                                         "several captures, one file each, named FILE-<capture>.png."),
+    force: bool = typer.Option(False, help="Overwrite the --plot file(s) if they exist (regular files only)."),
+    kind_old: Optional[Kind] = SIGNAL_OLD,
+    rate_old: Optional[float] = RATE_OLD,
 ) -> None:
     """Measure every read: amplitude, noise, hum, PW50, speed, timing margin, anomalies, verdict."""
     from readchan.capture import load_capture
     from readchan.diagnose import inspect_capture
     from readchan.render import exit_code
 
+    kind = renamed("--kind", "--signal", kind_old, signal, Kind.auto)
+    rate = renamed("--rate", "--rate-hz", rate_old, rate_hz)
     settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz)
-    targets = _plot_targets(plot, captures) if plot is not None else [None] * len(captures)
+    targets = _plot_targets(plot, captures, force) if plot is not None else [None] * len(captures)
     doc_reads, doc_channels, all_reads, all_results = [], [], [], []
     for path, target in zip(captures, targets):
         cap = load_capture(path, rate_hz=rate)
@@ -67,25 +71,29 @@ def inspect(
         if target is not None:
             from readchan.plot import plot_reports
 
-            panels = plot_reports(reports, target, unmask=unmask, title=str(path))
+            panels = plot_reports(reports, target, unmask=unmask, title=str(path), force=force)
             err.print(f"wrote {target}: {panels} panel(s)", highlight=False)
     if as_json:
-        print(json.dumps({"channels": doc_channels, "reads": doc_reads}, indent=2, allow_nan=False))
+        print(json.dumps({"schema": schema("inspect"), "channels": doc_channels, "reads": doc_reads}, indent=2,
+                         allow_nan=False))
     raise typer.Exit(exit_code(all_reads, all_results))
 
 
-def _plot_targets(plot: Path, captures: list[Path]) -> list[Path]:
+def _plot_targets(plot: Path, captures: list[Path], force: bool) -> list[Path]:
+    """The plot file of each capture, each checked before any work (readchan.atomic's rules)."""
+    from readchan.atomic import check_output_path
+
     if plot.suffix.lower() not in PLOT_SUFFIXES:
         raise ParameterError(f"--plot must name a {', '.join(PLOT_SUFFIXES)} file, was {str(plot)!r}")
-    parent = plot.parent if str(plot.parent) else Path(".")
-    if not parent.is_dir():
-        raise ParameterError(f"--plot: directory {str(parent)!r} does not exist")
     if len(captures) == 1:
-        return [check_output_path(plot)]
-    names = [plot.with_name(f"{plot.stem}-{c.stem}{plot.suffix}") for c in captures]
-    if len(set(names)) < len(names):
-        names = [plot.with_name(f"{plot.stem}-{i}-{c.stem}{plot.suffix}") for i, c in enumerate(captures)]
-    return [check_output_path(n) for n in names]
+        names = [plot]
+    else:
+        names = [plot.with_name(f"{plot.stem}-{c.stem}{plot.suffix}") for c in captures]
+        if len(set(names)) < len(names):
+            names = [plot.with_name(f"{plot.stem}-{i}-{c.stem}{plot.suffix}") for i, c in enumerate(captures)]
+    for name in names:
+        check_output_path(name, force=force, probe=True)
+    return names
 
 
 # ---------------------------------------------------------------------------------------------
@@ -317,8 +325,8 @@ def _rows(ch: ChannelReport, r: ReadReport) -> list[tuple[str, str, str]]:
         return f"bit {bit} at {t:.4f} s" + (f", char {c}" if c >= 0 else "")
 
     rows += [
-        ("", "decision margin worst", f"{tm.margin_min:.3f} ({where(tm.margin_min_bit, tm.margin_min_t_s)})"),
-        ("", "decision margin 1st pct", f"{tm.margin_p1:.3f} ({where(tm.margin_p1_bit, tm.margin_p1_t_s)})"),
+        ("", "timing margin worst", f"{tm.margin_min:.3f} ({where(tm.margin_min_bit, tm.margin_min_t_s)})"),
+        ("", "timing margin 1st pct", f"{tm.margin_p1:.3f} ({where(tm.margin_p1_bit, tm.margin_p1_t_s)})"),
         ("", "peak shift", "–" if tm.peak_shift_s is None else
          f"{tm.peak_shift_s * 1e6:+.2f} µs = {tm.peak_shift_cell:+.4f} cell"),
         ("", "intervals r = Δ/T", _histogram_line(tm.ratio)),

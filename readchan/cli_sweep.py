@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 import math
-from enum import Enum
+import sys
 from pathlib import Path
 from typing import Optional
 
@@ -13,16 +13,29 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 from rich.text import Text
 
-from readchan.cli import Profile, app, err, out
+from readchan.cli import Profile, app, err, out, schema, warn_line
 from readchan.errors import ParameterError
 
+SWEPT = {"snr-db": "snr_db", "jitter": "jitter", "variation": "variation", "pw50-cell": "pw50_cell",
+         "hum-level": "hum_level"}
+"""Swept parameters as the command line spells them (the name of their base option, without
+the dashes) and as the library and the JSON spell them."""
 
-class Swept(str, Enum):
-    snr_db = "snr_db"
-    jitter = "jitter"
-    variation = "variation"
-    pw50_cell = "pw50_cell"
-    hum_level = "hum_level"
+
+def _swept(name: str) -> str:
+    """The library name of a swept parameter given on the command line; the old underscore
+    spellings (``snr_db``) still work, with a deprecation warning."""
+    if name in SWEPT:
+        return SWEPT[name]
+    if name in SWEPT.values() and name not in SWEPT:
+        new = next(k for k, v in SWEPT.items() if v == name)
+        warn_line(f"sweep parameter {name} is deprecated and goes in the next release; use {new}")
+        return name
+    raise ParameterError(f"unknown sweep parameter {name!r}; choose one of {', '.join(SWEPT)}")
+
+
+def _cli_name(name: str) -> str:
+    return next(k for k, v in SWEPT.items() if v == name)
 
 
 def _values(text: Optional[str], start: Optional[float], stop: Optional[float], steps: Optional[int]):
@@ -50,10 +63,10 @@ def _step_table(result) -> Table:
 
     spec = result.spec
     fail = result.first_failing_step
-    t = Table(title=f"sweep of {spec.parameter} ({spec.unit}), track {spec.base.track}, "
+    t = Table(title=f"sweep of {_cli_name(spec.parameter)} ({spec.unit}), track {spec.base.track}, "
                     f"{spec.trials} trials per step")
     t.add_column("step", justify="right")
-    t.add_column(spec.parameter, justify="right")
+    t.add_column(_cli_name(spec.parameter), justify="right")
     t.add_column("reads ok", justify="right")
     t.add_column("success", justify="right")
     t.add_column("char errors", justify="right")
@@ -72,8 +85,10 @@ def _step_table(result) -> Table:
 
 @app.command()
 def sweep(
-    parameter: Swept = typer.Argument(..., help="Impairment to sweep: snr_db (dB), jitter (cells), "
-                                                "variation (of the mean speed), pw50_cell (cells), hum_level (of the peak)."),
+    parameter: str = typer.Argument(..., metavar="PARAMETER",
+                                    help="Impairment to sweep: snr-db (dB), jitter (cells), variation (of the mean "
+                                         "speed), pw50-cell (cells), hum-level (of the peak); the same names as "
+                                         "their base options."),
     start: Optional[float] = typer.Option(None, "--from", help="First swept value."),
     stop: Optional[float] = typer.Option(None, "--to", help="Last swept value."),
     steps: Optional[int] = typer.Option(None, "--steps", help="Number of evenly spaced values from --from to --to."),
@@ -98,18 +113,19 @@ def sweep(
     seed: int = typer.Option(0, min=0, help="Base random seed (trials are seeded from seed, step, trial)."),
     workers: Optional[int] = typer.Option(None, "--workers", "-j", help="Worker processes (default: all cores)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on stdout instead of the table."),
-    plot: Optional[Path] = typer.Option(None, "--plot", help="Write a PNG curve of success and character error rate."),
-    force: bool = typer.Option(False, help="Overwrite the --plot file if it exists."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Write a PNG curve of success and character error rate "
+                                        "(after the table or JSON is printed)."),
+    force: bool = typer.Option(False, help="Overwrite the --plot file if it exists (a regular file only)."),
 ) -> None:
     """Sweep one impairment: success, character errors and false accepts per step; where it drops below 99 %."""
     from readchan.synth import Impairments
     from readchan.sweep import DEMO_TEXTS, Scenario, SweepSpec, check_plot_path, plot_sweep, run_sweep
 
-    name = parameter.value
+    name = _swept(parameter)
     given = {"snr_db": snr_db, "jitter": jitter, "variation": variation, "pw50_cell": pw50_cell,
              "hum_level": hum_level}
     if given[name] is not None:
-        raise ParameterError(f"{name} is the swept parameter; drop its base option --{name.replace('_', '-')}")
+        raise ParameterError(f"{_cli_name(name)} is the swept parameter; drop its base option --{_cli_name(name)}")
     if demo and chars is not None:
         raise ParameterError("--chars sets random content; --demo records a fixed text")
     if plot is not None:
@@ -127,16 +143,18 @@ def sweep(
         task = bar.add_task(name, total=len(spec.values) * spec.trials)
         result = run_sweep(spec, workers=workers, progress=lambda done, total: bar.update(task, completed=done))
 
-    if plot is not None:
-        plot_sweep(result, plot, force=force)
+    # The results first: a plot that cannot be written must not cost the trials.
     if as_json:
-        print(json.dumps(result.to_dict(), indent=2))
+        print(json.dumps({"schema": schema("sweep"), **result.to_dict()}, indent=2))
     else:
         out.print(_step_table(result))
         i = result.first_failing_step
         if i is None:
             out.print(f"success stays at or above 99 % over the whole sweep ({result.rate_hz:g} Hz sampling)")
         else:
-            out.print(f"success falls below 99 % at step {i}: {name} = {result.steps[i].value:g} {spec.unit}")
+            out.print(f"success falls below 99 % at step {i}: {_cli_name(name)} = {result.steps[i].value:g} "
+                      f"{spec.unit}")
     if plot is not None:
+        sys.stdout.flush()
+        plot_sweep(result, plot, force=force)
         err.print(f"wrote {plot}")

@@ -125,7 +125,7 @@ class Limit:
 LIMITS = (
     Limit("snr_db", "low SNR", "SNR", "dB", 1.0, 20.0, "min",
           "common practice: at 20 dB a 4σ noise peak reaches 0.4 of a pulse, the detection threshold"),
-    Limit("margin_min", "low decision margin", "worst decision margin", "", 1.0, 0.3, "min",
+    Limit("margin_min", "low timing margin", "worst timing margin", "", 1.0, 0.3, "min",
           "common practice: 0.3 leaves 0.075 cell between the worst interval and the 0.75 boundary"),
     Limit("pw50_cell", "wide pulses", "PW50", "cell", 1.0, 0.5, "max",
           "common practice: wider than half a cell, the two pulses of a 1 merge and shift"),

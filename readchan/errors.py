@@ -7,6 +7,9 @@ Exit codes (documented in the README):
 1     data was found, but at least one read is not valid
 2     bad input or usage (unreadable file, bad parameter, ...)
 3     no data found in any capture
+4     internal error (a bug: please report it)
+141   standard output was closed early (``readchan decode ... | head``):
+      the remaining output is dropped quietly, as 128 + SIGPIPE
 ====  =========================================================
 """
 
@@ -16,6 +19,8 @@ EXIT_VALID = 0
 EXIT_INVALID = 1
 EXIT_BAD_INPUT = 2
 EXIT_NO_DATA = 3
+EXIT_INTERNAL = 4
+EXIT_PIPE_CLOSED = 141
 
 
 class ReadchanError(Exception):
@@ -34,6 +39,11 @@ class FormatError(ReadchanError):
 
 class ParameterError(ReadchanError):
     """A parameter is out of its physical or practical range."""
+
+
+class OutputError(ReadchanError):
+    """An output file cannot be written: it exists (without force), is not a regular file,
+    or its directory is missing, full or refuses new files."""
 
 
 class NoDataError(ReadchanError):

@@ -6,7 +6,7 @@ Each read gets five panels, legible for a capture of 10,000 bits:
    its transitions and its anomalies marked;
 2. a zoom at the start sentinel: samples, detected pulses, every bit's value over its cell and
    the character boundaries with the characters (account numbers masked);
-3. the same zoom around the bit of least decision margin;
+3. the same zoom around the bit of least timing margin;
 4. the normalised intervals r = Δ/T along the swipe with the half-cell (0.5), boundary (0.75)
    and full-cell (1.0) lines and the band where the margin is below its verdict limit;
 5. swipe speed (bits and the sliding fit) and pulse amplitude along the swipe.
@@ -17,8 +17,6 @@ A channel with no framed read gets one panel: its waveform with the detected tra
 from __future__ import annotations
 
 import math
-import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -40,9 +38,10 @@ _MARGIN_LIMIT = next(lim.limit for lim in LIMITS if lim.name == "margin_min")
 
 
 def plot_reports(reports: list[ChannelReport], path: str | Path, *, unmask: bool = False,
-                 title: str | None = None, dpi: int = 100) -> int:
+                 title: str | None = None, dpi: int = 100, force: bool = False) -> int:
     """Draw every read of ``reports`` into one figure and write it to ``path`` (PNG, PDF or SVG,
-    by suffix), atomically.  Returns the number of panels drawn."""
+    by suffix), atomically; an existing file is replaced only with ``force``.  Returns the
+    number of panels drawn."""
     reads = [(ch, r) for ch in reports for r in ch.reads]
     empty = [ch for ch in reports if not ch.reads]
     cells = len(reads) + len(empty)
@@ -67,23 +66,16 @@ def plot_reports(reports: list[ChannelReport], path: str | Path, *, unmask: bool
         panels += _plot_empty(sf, ch)
     for k in range(cells, nrows * ncols):
         subs[k // ncols, k % ncols].set_visible(False)
-    _save(fig, Path(path), dpi)
+    _save(fig, Path(path), dpi, force)
     return panels
 
 
-def _save(fig: Figure, path: Path, dpi: int) -> None:
-    # the temporary name stays within NAME_MAX however long the target's name is
-    prefix = "." + os.fsdecode(os.fsencode(path.name)[:200]) + "."
-    fd, tmp = tempfile.mkstemp(prefix=prefix, suffix=path.suffix, dir=path.parent or Path("."))
-    os.close(fd)
-    try:
+def _save(fig: Figure, path: Path, dpi: int, force: bool = False) -> None:
+    """Write the figure through :func:`readchan.atomic.atomic_output` (same rules as captures)."""
+    from readchan.atomic import atomic_output
+
+    with atomic_output(path, force=force) as tmp:
         fig.savefig(tmp, dpi=dpi, format=path.suffix.lstrip(".").lower() or "png")
-        os.replace(tmp, path)
-    except OSError as e:
-        raise ParameterError(f"cannot write plot {str(path)!r}: {e.strerror or e}") from None
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
 
 
 # ---------------------------------------------------------------------------------------------

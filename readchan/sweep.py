@@ -56,6 +56,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
+from readchan.atomic import atomic_output, check_output_path
 from readchan.decode import DecodeSettings, decode_channel, reads_from
 from readchan.errors import ParameterError
 from readchan.formats import TRACKS
@@ -599,24 +600,17 @@ def plot_sweep(result: SweepResult, path: str | os.PathLike, *, force: bool = Fa
     ax.legend(loc="best", fontsize=8)
     ax.grid(alpha=0.3)
     fig.tight_layout()
-    tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
     try:
-        fig.savefig(tmp, format="png")
-        os.replace(tmp, path)
+        with atomic_output(path, force=force) as tmp:
+            fig.savefig(tmp, format="png")
     finally:
         plt.close(fig)
-        if tmp.exists():
-            tmp.unlink()
     return path
 
 
 def check_plot_path(path: Path, *, force: bool = False) -> None:
-    """Raise ParameterError unless ``path`` can take a new PNG."""
-    if path.suffix.lower() != ".png":
+    """Raise a ReadchanError (exit code 2) unless ``path`` can take a new PNG: the rules of
+    :func:`readchan.atomic.check_output_path`, and the directory takes a file now."""
+    if Path(path).suffix.lower() != ".png":
         raise ParameterError(f"the plot is written as PNG; give a file name ending in .png, was {str(path)!r}")
-    if path.is_dir():
-        raise ParameterError(f"{path} is a directory")
-    if path.exists() and not force:
-        raise ParameterError(f"{path} exists; pass --force to overwrite")
-    if not path.parent.is_dir():
-        raise ParameterError(f"folder {path.parent} does not exist")
+    check_output_path(path, force=force, probe=True)

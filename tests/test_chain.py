@@ -197,7 +197,7 @@ def test_synth_command_writes_a_scope_csv_on_the_8_bit_levels_that_decodes(monke
     code, _, err = run_cli(monkeypatch, capsys, "synth", out, "--track2", ";1234567890?", "--snr-db", "35",
                            "--preamp-lowpass-hz", "6000", "--preamp-family", "bessel", "--preamp-order", "3",
                            "--ac-coupling-hz", "10", "--scope-volts-per-div", "0.1", "--no-antialias",
-                           "--kind", "csv", "--rate-hz", "50000")
+                           "--file-type", "csv", "--rate-hz", "50000")
     assert code == 0, err
     cap = load_capture(out)
     codes = cap.channel(0) / (0.1 * 8 / 256)

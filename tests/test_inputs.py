@@ -111,7 +111,7 @@ def test_csv_whose_time_step_is_absurdly_small_is_refused_naming_the_range(tmp_p
 @pytest.mark.parametrize("rate", ["1e11", "1e308", "50"])
 def test_given_rate_outside_the_range_is_a_one_line_error_with_exit_2(tmp_path, monkeypatch, capsys, rate):
     path = _one_column_csv(tmp_path / "one.csv", np.sin(np.arange(500) / 5.0))
-    code, _, err = run_cli(monkeypatch, capsys, "decode", path, "--rate", rate)
+    code, _, err = run_cli(monkeypatch, capsys, "decode", path, "--rate-hz", rate)
     assert code == 2
     assert "between 100 Hz and 1e+09 Hz" in one_line_error(err)
 
@@ -197,7 +197,7 @@ def test_head_dimensions_beyond_ten_millimetres_are_refused_naming_the_range(mak
 
 
 @pytest.mark.parametrize("args", [["--jitter", "-0"], ["--density-bpi", "0"], ["--seed", "-1"],
-                                  ["--gap-um", "1e308"]])
+                                  ["--head-gap-um", "1e308"]])
 def test_synth_options_are_validated_from_the_command_line(tmp_path, monkeypatch, capsys, args):
     out = tmp_path / "card.wav"
     code, _, err = run_cli(monkeypatch, capsys, "synth", out, "--track1", "%AB?", *args)
@@ -228,7 +228,7 @@ def test_sample_estimate_is_what_synthesize_renders():
 
 def test_synth_over_the_limit_exits_2_and_writes_nothing(tmp_path, monkeypatch, capsys):
     out = tmp_path / "long.wav"
-    code, _, err = run_cli(monkeypatch, capsys, "synth", out, "--track1", "%AB?", "--gap-s", "3600", "--swipes", "2")
+    code, _, err = run_cli(monkeypatch, capsys, "synth", out, "--track1", "%AB?", "--pause-s", "3600", "--swipes", "2")
     assert code == 2 and not out.exists()
     assert "--force" in one_line_error(err)
 

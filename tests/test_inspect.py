@@ -205,7 +205,7 @@ def test_inspect_json_is_one_object_with_si_keys(monkeypatch, capsys):
     code, out, _ = run(monkeypatch, capsys, "inspect", "--json", FIXTURES / "three-track-swipe.wav")
     assert code == EXIT_VALID
     doc = json.loads(out)
-    assert set(doc) == {"channels", "reads"}
+    assert set(doc) == {"schema", "channels", "reads"} and doc["schema"] == "readchan.inspect/1"
     r = doc["reads"][0]
     assert {"amplitude", "noise", "pulse", "timing", "anomalies", "checks", "verdict", "trace"} <= set(r)
     assert {"snr_db", "noise_rms", "hum_hz", "mains_hz"} <= set(r["noise"])

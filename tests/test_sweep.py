@@ -129,13 +129,13 @@ def test_sweep_json_is_one_object_with_the_stable_keys(monkeypatch, capsys):
 
 
 def test_sweep_table_names_the_first_failing_step(monkeypatch, capsys):
-    code, out, _ = run(monkeypatch, capsys, "sweep", "snr_db", "--values", "40,0", "--trials", "2", *QUICK_ARGS)
-    assert code == 0 and "first below 99 %" in out and "snr_db = 0 dB" in out
+    code, out, _ = run(monkeypatch, capsys, "sweep", "snr-db", "--values", "40,0", "--trials", "2", *QUICK_ARGS)
+    assert code == 0 and "first below 99 %" in out and "snr-db = 0 dB" in out
 
 
 def test_sweep_plot_is_a_non_empty_png(monkeypatch, capsys, tmp_path):
     png = tmp_path / "curve.png"
-    code, _, _ = run(monkeypatch, capsys, "sweep", "snr_db", "--from", "40", "--to", "0", "--steps", "2",
+    code, _, _ = run(monkeypatch, capsys, "sweep", "snr-db", "--from", "40", "--to", "0", "--steps", "2",
                      "--trials", "2", "--plot", png, *QUICK_ARGS)
     assert code == 0
     assert png.stat().st_size > 1000 and png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
@@ -144,25 +144,25 @@ def test_sweep_plot_is_a_non_empty_png(monkeypatch, capsys, tmp_path):
 def test_sweep_refuses_to_overwrite_a_plot_without_force(monkeypatch, capsys, tmp_path):
     png = tmp_path / "curve.png"
     png.write_bytes(b"precious")
-    code, _, err = run(monkeypatch, capsys, "sweep", "snr_db", "--values", "40", "--trials", "1",
+    code, _, err = run(monkeypatch, capsys, "sweep", "snr-db", "--values", "40", "--trials", "1",
                        "--plot", png, *QUICK_ARGS)
     assert code == EXIT_BAD_INPUT and "--force" in err and png.read_bytes() == b"precious"
 
 
 @pytest.mark.parametrize("args", [
     ["sweep", "loudness", "--values", "1"],
-    ["sweep", "snr_db"],
-    ["sweep", "snr_db", "--values", "20,abc"],
-    ["sweep", "snr_db", "--values", "20", "--from", "1", "--to", "2", "--steps", "2"],
-    ["sweep", "snr_db", "--from", "30", "--to", "10", "--steps", "0"],
-    ["sweep", "snr_db", "--values", "20", "--snr-db", "10"],
+    ["sweep", "snr-db"],
+    ["sweep", "snr-db", "--values", "20,abc"],
+    ["sweep", "snr-db", "--values", "20", "--from", "1", "--to", "2", "--steps", "2"],
+    ["sweep", "snr-db", "--from", "30", "--to", "10", "--steps", "0"],
+    ["sweep", "snr-db", "--values", "20", "--snr-db", "10"],
     ["sweep", "jitter", "--values", "0.5"],
-    ["sweep", "pw50_cell", "--values", "-1"],
+    ["sweep", "pw50-cell", "--values", "-1"],
     ["sweep", "variation", "--values", "0.2", "--profile", "constant"],
-    ["sweep", "snr_db", "--values", "20", "--trials", "0"],
-    ["sweep", "snr_db", "--values", "20", "--speed-cm-s", "150", "--rate-hz", "8000"],
-    ["sweep", "snr_db", "--values", "20", "--plot", "curve.svg"],
-    ["sweep", "snr_db", "--values", "20", "--track", "2", "--chars", "99"],
+    ["sweep", "snr-db", "--values", "20", "--trials", "0"],
+    ["sweep", "snr-db", "--values", "20", "--speed-cm-s", "150", "--rate-hz", "8000"],
+    ["sweep", "snr-db", "--values", "20", "--plot", "curve.svg"],
+    ["sweep", "snr-db", "--values", "20", "--track", "2", "--chars", "99"],
 ])
 def test_bad_sweep_arguments_give_a_one_line_error_and_exit_2(monkeypatch, capsys, tmp_path, args):
     monkeypatch.chdir(tmp_path)
