@@ -175,9 +175,11 @@ class FrontEnd:
     noise_slow_excluded_s : quiet time left out of the noise as slow content, seconds.
     hum_from : ``"quiet"`` or ``"quiet and between pulses"``: where the hum was fitted.
     quant_step : the converter's step (capture units) when the samples lie on a grid, else None.
-    noise_floored : the measured noise was below the quantisation noise step/√12 (uniform-error
-        model, Widrow & Kollár, *Quantization Noise*, 2008) and was raised to it: quiet samples
-        that sit on one level hide the quantisation error every pulse carries.
+    noise_floored : the noise spanned only a level or two of the converter, so its RMS on the
+        grid misjudged it: the figure is instead sqrt(σ² + step²/12), σ the noise before the
+        converter estimated from how the quiet samples fall on the levels
+        (:func:`quantised_sigma`) and step/√12 the quantisation noise every pulse carries
+        (uniform-error model, Widrow & Kollár, *Quantization Noise*, 2008).
     """
 
     channel: int
@@ -439,7 +441,8 @@ def noise_source_text(fe: FrontEnd) -> str:
         if left:
             text += "; left out: " + ", ".join(left)
     if fe.noise_floored:
-        text += f"; raised to the quantisation noise step/√12 (step {fe.quant_step:.3g} {fe.units})"
+        text += (f"; on a {fe.quant_step:.3g} {fe.units} converter step the noise spans a level or two: "
+                 "noise before the converter from the levels' counts, plus step/√12")
     return text
 
 
@@ -544,16 +547,21 @@ def _front_end(x, rate_hz, result, quiet, highpass_hz, units):
         wander = float(np.ptp((x - hum.waveform(x.size, rate_hz) - cond.dc_offset) - w))
     quiet_s = float(quiet.sum()) / rate_hz
     cell_s = float(np.median(np.diff(tr.times_s))) if len(tr) >= 2 else 1e-3
-    est = robust_noise(w, rate_hz, quiet, cell_s=cell_s) if quiet_s >= MIN_QUIET_S else None
+    step = quantisation_step(x)
+    est = robust_noise(w, rate_hz, quiet, cell_s=cell_s, step=step) if quiet_s >= MIN_QUIET_S else None
     if est is not None and est.used_s >= MIN_QUIET_S:
         noise, how = est.rms, "quiet"
     else:
         noise, how = noise_rms(w, rate_hz), "blocks"
         est = None
-    step = quantisation_step(x)
-    floored = step is not None and noise < step / math.sqrt(12.0)
-    if floored:
-        noise = step / math.sqrt(12.0)
+    floored = False
+    if step is not None and noise < 0.6 * step and (hum is None or hum.amplitude < step):
+        # the noise spans a level or two: its RMS on the grid misjudges it; estimate the noise
+        # before the converter from how the samples fall on the levels, and add step/√12
+        sigma = None if est is None else quantised_sigma(x, est.mask, step, rate_hz)
+        total = math.hypot(sigma, step / math.sqrt(12.0)) if sigma is not None else step / math.sqrt(12.0)
+        if total > noise:
+            noise, floored = total, True
     mains = None if hum is None else (50.0 if abs(hum.freq_hz - 50.0) < abs(hum.freq_hz - 60.0) else 60.0)
     fe = FrontEnd(result.channel, "head", units, rate_hz, x.size / rate_hz, cond.dc_offset, wander,
                   None if hum is None else hum.freq_hz, mains, None if hum is None else hum.amplitude,
@@ -563,6 +571,47 @@ def _front_end(x, rate_hz, result, quiet, highpass_hz, units):
                   noise_slow_excluded_s=0.0 if est is None else est.slow_excluded_s,
                   hum_from=hum_from, quant_step=step, noise_floored=floored)
     return fe, np.ascontiguousarray(w)
+
+
+QUANT_BLOCK_S = 0.004
+"""Stretch of quiet samples over which the baseline is taken as constant between two levels."""
+
+
+def quantised_sigma(x: np.ndarray, use: np.ndarray, step: float, rate_hz: float) -> float | None:
+    """Standard deviation of the noise before a converter of step ``step``, from the raw quiet
+    samples ``x[use]`` that sit on its levels: maximum likelihood of Gaussian noise of σ about a
+    baseline μ (constant within each ``QUANT_BLOCK_S`` block, anywhere between two levels),
+    rounded to the nearest level, P(level k) = Φ((k + ½ − μ)/σ) − Φ((k − ½ − μ)/σ) (the
+    quantised-Gaussian model, Widrow & Kollár, *Quantization Noise*, 2008, ch. 4).  σ is searched
+    on a grid of 0.02–2 steps, μ per block on 1/200-step spacing.  None with too few samples."""
+    from scipy.special import ndtr
+
+    idx = np.flatnonzero(use)
+    if idx.size < 256:
+        return None
+    block = max(16, int(QUANT_BLOCK_S * rate_hz))
+    # blocks of consecutive used samples
+    brk = np.flatnonzero(np.diff(idx) > 1) + 1
+    runs = np.split(idx, brk)
+    counts = []
+    origin = float(np.median(x[idx]))          # a level: the grid need not pass through zero
+    for run in runs:
+        for a in range(0, run.size - block + 1, block):
+            lv = np.round((x[run[a:a + block]] - origin) / step).astype(np.int64)
+            d = np.clip(lv - int(np.median(lv)), -4, 4)
+            counts.append(np.bincount(d + 4, minlength=9))
+    if len(counts) < 4:
+        return None
+    n = np.asarray(counts, float)                                   # (blocks, 9 levels)
+    k = np.arange(-4, 5, dtype=float)
+    s_grid = np.geomspace(0.02, 2.0, 100)
+    mu = np.linspace(-0.5, 0.5, 201)
+    z_hi = (k[None, None, :] + 0.5 - mu[None, :, None]) / s_grid[:, None, None]
+    z_lo = (k[None, None, :] - 0.5 - mu[None, :, None]) / s_grid[:, None, None]
+    p = np.clip(ndtr(z_hi) - ndtr(z_lo), 1e-12, 1.0)               # (σ, μ, level)
+    ll = np.einsum("bk,smk->sbm", n, np.log(p))                    # (σ, block, μ)
+    total = ll.max(axis=2).sum(axis=1)
+    return float(s_grid[int(np.argmax(total))] * step)
 
 
 def quantisation_step(x: np.ndarray) -> float | None:
@@ -594,12 +643,14 @@ class NoiseEstimate:
     pulses_excluded : isolated pulses (card edges, stray detections) left out.
     slow_excluded_s : time left out for slow excursions (AC-coupling recovery, residual
         wander), seconds.
+    mask : the samples the RMS was taken over.
     """
 
     rms: float
     used_s: float
     pulses_excluded: int
     slow_excluded_s: float
+    mask: np.ndarray | None = None
 
 
 PULSE_SIGMA = 5.0
@@ -613,11 +664,14 @@ PULSE_REACH_CELLS = 4.0
 """Samples within this many typical intervals of an isolated pulse are left out of the noise."""
 
 
-def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: float = 1e-3) -> NoiseEstimate | None:
+def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: float = 1e-3,
+                 step: float | None = None) -> NoiseEstimate | None:
     """Noise RMS on the quiet samples of ``w`` that isolated pulses and slow content cannot move.
 
     1. A robust scale σ₀ = 1.4826·MAD of the quiet samples (the normal-consistent median
        absolute deviation; Rousseeuw & Croux, JASA 88, 1993): a few pulses do not move it.
+       On a converter grid of ``step`` it is at least step/2 (quantised noise a level or two
+       wide has a MAD of 0 or one step).
     2. Samples within ``PULSE_REACH_CELLS`` typical intervals (``cell_s``) of a quiet sample
        beyond ``PULSE_SIGMA``·σ₀ are left out (card-edge pulses, stray detections).
     3. The rest is smoothed by a moving average over max(1 ms, 4 intervals); where the smoothed
@@ -635,6 +689,8 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
         return None
     vals = w[q]
     s0 = 1.4826 * float(np.median(np.abs(vals - np.median(vals))))
+    if step:
+        s0 = max(s0, 0.5 * step)
     if not s0 > 0:
         s0 = float(np.std(vals))
     if not s0 > 0:
@@ -656,6 +712,8 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
     if full.sum() >= 64:
         sm = smooth[full]
         s1 = 1.4826 * float(np.median(np.abs(sm - np.median(sm))))
+        if step:
+            s1 = max(s1, step / math.sqrt(12.0 * m))
         if s1 > 0:
             slow = full & (np.abs(smooth - np.median(sm)) > SLOW_SIGMA * s1)
             if slow.any():
@@ -665,7 +723,7 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
         return None
     u = w[use]
     return NoiseEstimate(float(np.sqrt(np.mean((u - u.mean()) ** 2))), float(use.sum()) / rate_hz, n_pulses,
-                         float(slow.sum()) / rate_hz)
+                         float(slow.sum()) / rate_hz, use)
 
 
 def _hp_gain(f_hz: np.ndarray, corner_hz: float | None) -> np.ndarray:

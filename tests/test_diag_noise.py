@@ -33,12 +33,12 @@ BAND_DB = 10 * math.log10(24_000 / 7_900)
 
 
 def front_end_capture(track, text, *, snr_db, ac_hz=20.0, lp_hz=7900.0, order=2, rate_hz=48_000.0,
-                      speed_cm_s=30.0, hum_level=0.0, hum_hz=50.0, scope_v_div=None, lead_s=0.06, seed=0,
-                      edge_pulses=True):
+                      speed_cm_s=30.0, hum_level=0.0, hum_hz=50.0, scope_v_div=None, scope_offset_v=0.0, lead_s=0.06,
+                      seed=0, edge_pulses=True):
     """(Capture, true output SNR dB, true hum amplitude) of one swipe through a front end;
     ``snr_db`` is the SNR wanted at the output (the head SNR is set lower by the preamp's band)."""
     fe = FrontEnd(ac_coupling_hz=ac_hz, preamp_lowpass_hz=lp_hz, preamp_order=order,
-                  scope_volts_per_div=scope_v_div)
+                  scope_volts_per_div=scope_v_div, scope_offset_v=scope_offset_v)
     imp = Impairments(snr_db=snr_db - BAND_DB, hum_hz=hum_hz, hum_level=hum_level, edge_pulses=edge_pulses)
     spec = SynthSpec(tracks=(track_content(text, track=track),), speed=SpeedProfile(speed_cm_s), pulse=HEAD,
                      impairments=imp, rate_hz=rate_hz, seed=seed, lead_s=lead_s, front_end=fe)
@@ -91,6 +91,17 @@ def test_quiet_samples_on_one_level_count_the_quantisation_noise():
     cap, truth, _ = front_end_capture(1, T1, snr_db=60.0, scope_v_div=0.2, seed=9)
     fe, r = _read(cap)
     assert fe.noise_floored
+    assert r.noise.snr_db == pytest.approx(truth, abs=1.0)
+
+
+@pytest.mark.parametrize("offset_steps", [0.0, 0.5, 0.3])
+def test_eight_bit_scope_noise_narrower_than_a_step(offset_steps):
+    # 45 dB wanted at 0.2 V/div: σ ≈ 0.3 step, so the truth is ruled by step/√12 (42.5 dB); the
+    # baseline sits on a level, between two, or in between
+    step = 0.2 * 8 / 256
+    cap, truth, _ = front_end_capture(1, T1, snr_db=45.0, scope_v_div=0.2, scope_offset_v=offset_steps * step,
+                                      lead_s=0.03, seed=12)
+    fe, r = _read(cap)
     assert r.noise.snr_db == pytest.approx(truth, abs=1.0)
 
 
