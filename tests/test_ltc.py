@@ -82,10 +82,11 @@ def test_ten_times_nominal_reads_every_frame():
 
 
 def test_crawl_at_a_tenth_through_ac_coupling():
-    # the AC-coupling corner at 10 Hz tilts each 5 ms cell of a 0.1× square wave
+    # the AC-coupling corner at 10 Hz tilts each 5 ms cell of a 0.1× square wave; the tilt moves
+    # the mid-level crossing within the 250 µs edge, so positions hold to a fifth of the edge
     s, r = roundtrip(duration_s=2.5, speed=PlaySpeed.constant(0.1), playback=Playback(highpass_hz=10.0, snr_db=30))
     assert len(s.frames) >= 4
-    assert_matches_truth(s, r, pos_tol_s=2e-5)
+    assert_matches_truth(s, r, pos_tol_s=5e-5)
 
 
 def test_wow_flutter_noise_and_a_narrow_band_still_read_every_frame():

@@ -30,8 +30,10 @@ Demodulation from zero crossings (each interval between crossings is a half cycl
 5. A UART on the time axis: a start bit begins where mark turns to space; the bits are judged
    by the mark fraction over the middle 60 % of each of 11 bit cells, at the local bit time
    (1/baud)/speed.  Stop bits that are not mark, or a cell without tone, are a framing error.
-   The first byte of a block needs ``min_leader_s`` of mark before it; a block ends where the
-   tone is lost, and the next one needs a leader again.
+   The first byte of a block needs ``min_leader_s`` of mark before it.  Where the tone is lost
+   for up to ``max_dropout_s`` (a dropout), 1.5 bits of idle mark before a start bit resume the
+   block (bytes cut by the dropout are framing errors, and a start found mid-byte resynchronises
+   within a few bytes, as a UART does); after a longer loss the next block needs a leader again.
 
 Baud rate: the durations of the mark and space runs, in 1200-baud bit cells, are multiples
 of 4 at 300 baud; when at least 80 % of them are, the capture is 300 baud, else 1200.
@@ -229,7 +231,7 @@ def _leader_s(track: ToneTrack, t: float, min_s: float) -> float:
             return length
 
 
-def _uart(track: ToneTrack, baud: int, min_leader_s: float):
+def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float):
     """Bytes, start times, framing errors, margins, speeds and the leader (module docstring)."""
     out, times, errors, margins, speeds = [], [], [], [], []
     onsets = track.onsets_s
@@ -247,7 +249,10 @@ def _uart(track: ToneTrack, baud: int, min_leader_s: float):
             _, cov = track.fractions(np.array([prev_end]), np.array([max(t, prev_end + 1e-9)]))
             in_block = cov[0] >= 0.8
         if not in_block:
-            if not _leader_s(track, t, min_leader_s) >= min_leader_s:
+            # after a short loss of tone, 1.5 bits of idle mark resume the block; else a leader
+            resume = t - prev_end <= max_dropout_s
+            need = 1.5 * bit_s if resume else min_leader_s
+            if not _leader_s(track, t, need) >= need:
                 k += 1
                 continue
         a = t + (centres[:, 0] - half) * bit_s
@@ -276,7 +281,7 @@ def _uart(track: ToneTrack, baud: int, min_leader_s: float):
 
 
 def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: int | None = None,
-               min_leader_s: float = 0.05) -> KcsRead:
+               min_leader_s: float = 0.05, max_dropout_s: float = 0.5) -> KcsRead:
     """Read Kansas City standard bytes from ``samples`` (1-D, or samples × channels).
 
     Parameters
@@ -286,6 +291,7 @@ def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: i
     channel : channel index for a 2-D capture.
     baud : 300 or 1200; None to detect it.
     min_leader_s : mark a block's first byte needs before it, seconds.
+    max_dropout_s : a loss of tone up to this long (seconds) does not end a block.
 
     Raises
     ------
@@ -304,7 +310,7 @@ def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: i
     if track is None:
         return KcsRead(channel, baud or 300, b"", np.zeros(0), (), np.zeros(0), 1.0, False, 0.0, 0.0, 0.0)
     used = baud or detect_baud(track)
-    data, times, errors, margins, speeds, leader = _uart(track, used, min_leader_s)
+    data, times, errors, margins, speeds, leader = _uart(track, used, min_leader_s, max_dropout_s)
     t = np.asarray(times, float)
     sp = float(np.median(speeds)) if speeds else 1.0
     end = float(t[-1] + BYTE_BITS / (used * speeds[-1])) if times else 0.0

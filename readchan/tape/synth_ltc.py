@@ -46,8 +46,9 @@ RISE_S = {"smpte": 25e-6, "ebu": 50e-6}
 """10–90 % rise time of the LTC square wave at nominal speed (from memory)."""
 USER_KINDS = ("constant", "counting", "text")
 EDIT_KINDS = ("jump", "repeat", "skip", "splice")
-ERF_10_90 = 2 * 1.2815515655446004 * math.sqrt(2)
-"""10–90 % rise of 0.5·(1 + erf(u)) in units of u: 2·z₀.₉·√2·σ with σ = 1/√2."""
+ERF_10_90 = 2 * 1.2815515655446004 / math.sqrt(2)
+"""10–90 % rise of 0.5·(1 + erf(u)) in units of u: erf(u) = ±0.8 at u = ±z₀.₉/√2 (z₀.₉ = 1.2816,
+the normal distribution's 90 % point)."""
 
 
 @dataclass(frozen=True)
