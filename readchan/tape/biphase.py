@@ -21,12 +21,12 @@ bit-period trace).  What is tape-specific is the period trace:
 * A stretch of signal ends where the interval between transitions exceeds ``gap_factor``
   times the local typical interval (:func:`readchan.segment.segment`).
 
-Transitions come from :func:`readchan.detect.detect_logic` for a line-level signal (a square
-wave: mid-level crossings with hysteresis, robust to the tilt of AC coupling because an
-exponential decay never crosses the mid level) and :func:`readchan.detect.detect_head` for a
-raw head signal (pulses whose amplitude grows with speed, followed by the detector's envelope;
-its candidate floor is 2 % of the largest pulses, since a tape signal has no quiet stretch to
-take the noise from).
+Transitions of a line-level signal (a square wave) are mid-level crossings with hysteresis, the
+rule of :func:`readchan.detect.detect_logic` run vectorised (:mod:`readchan.tape.crossings`),
+robust to the tilt of AC coupling because an exponential decay never crosses the mid level;
+those of a raw head signal (pulses whose amplitude grows with speed) are the peaks of
+:func:`readchan.detect.detect_head`, whose envelope follows the amplitude; its candidate floor
+is 2 % of the largest pulses, since a tape signal has no quiet stretch to take the noise from.
 """
 
 from __future__ import annotations
@@ -36,9 +36,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.ndimage import median_filter
 
-from readchan.detect import Transitions, classify_kind, detect_head, detect_logic
+from readchan.detect import Transitions, detect_head
 from readchan.errors import ParameterError
 from readchan.segment import segment
+from readchan.tape.crossings import hysteresis_crossings
 from readchan.timing import FLAG_LONE_HALF, BitStream, recover_bits
 
 ANCHOR_TOLERANCE = 0.3
@@ -142,22 +143,53 @@ def bits_from_times(times_s: np.ndarray) -> BitStream | None:
     return recover_bits(t, period_at=lambda q: np.interp(q, t, trace))
 
 
+LINE_FILL = 0.6
+"""Mean |x − mid| over half the 1–99 % span at and above which a tape signal is line level."""
+
+
+def signal_kind(x: np.ndarray) -> str:
+    """``"line"`` or ``"head"``: how full the signal is between its rails.
+
+    A square wave sits at its rails, so the mean of |x − mid| is close to half its 1–99 %
+    span (0.83–0.96 for line-level LTC from crawl through AC coupling to 10×, 0.71 through a
+    100 Hz–8 kHz band); a train of head pulses spends most of its time below its peaks (about
+    0.3–0.4).  A card-style two-level test (the time spent near the mid level) fails for
+    tape, whose edges at 2 kbit/s and 25 µs fill over 5 % of the samples at 48 kHz.
+    """
+    x = np.asarray(x, float)[:: max(1, x.size // 400_000)]
+    lo, hi = np.percentile(x, [1.0, 99.0])
+    if not hi > lo:
+        return "head"
+    fill = float(np.mean(np.abs(x - 0.5 * (lo + hi)))) / (0.5 * (hi - lo))
+    return "line" if fill >= LINE_FILL else "head"
+
+
 def transitions(x: np.ndarray, rate_hz: float, kind: str = "auto") -> tuple[Transitions, str]:
     """Transitions of a tape signal and the detector used (``"line"`` or ``"head"``).
 
-    ``auto`` picks ``line`` when the signal spends nearly all its time at two levels
-    (:func:`readchan.detect.classify_kind`), else ``head``.  The median is removed first.
+    ``auto`` decides by :func:`signal_kind`.  The median is removed first.
     """
     if kind not in SIGNAL_KINDS:
         raise ParameterError(f"signal kind must be one of {', '.join(SIGNAL_KINDS)}, was {kind!r}")
     x = np.asarray(x, float)
-    x = x - np.median(x)
+    x = x - np.median(x[:: max(1, x.size // 400_000)])
     if kind == "auto":
-        kind = "line" if classify_kind(x) == "logic" else "head"
+        kind = signal_kind(x)
     # a tape signal has no quiet stretches to take the noise from, so the head detector's
     # floor is its own 2 % of the largest pulses and the envelope threshold rejects noise
-    tr = detect_logic(x, rate_hz) if kind == "line" else detect_head(x, rate_hz, floor_sigma=0.0)
+    tr = _line_transitions(x, rate_hz) if kind == "line" else detect_head(x, rate_hz, floor_sigma=0.0)
     return tr, kind
+
+
+def _line_transitions(x: np.ndarray, rate_hz: float, hysteresis: float = 0.2) -> Transitions:
+    """Mid-level crossings with ± ``hysteresis`` × the 1–99 % span (``detect_logic``'s rule,
+    vectorised by :func:`readchan.tape.crossings.hysteresis_crossings`)."""
+    lo, hi = np.percentile(x[:: max(1, x.size // 400_000)], [1.0, 99.0])
+    mid = 0.5 * (lo + hi)
+    t = hysteresis_crossings(x - mid, hysteresis * (hi - lo)) if hi > lo else np.zeros(0)
+    idx = np.round(t).astype(np.int64)
+    z = np.zeros(t.size)
+    return Transitions(t / rate_hz, idx, z, z, np.zeros(t.size, np.uint8), float(rate_hz), "logic", 0.0)
 
 
 def decode_biphase(x: np.ndarray, rate_hz: float, *, kind: str = "auto",

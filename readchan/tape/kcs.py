@@ -48,6 +48,7 @@ from scipy import signal as sps
 from scipy.ndimage import uniform_filter1d
 
 from readchan.errors import ParameterError
+from readchan.tape.crossings import hysteresis_crossings
 from readchan.tape.ltc import _channel, check_rate
 
 BAUDS = (300, 1200)
@@ -111,20 +112,7 @@ def zero_crossings(x: np.ndarray, rate_hz: float) -> np.ndarray:
     sos = sps.butter(4, [500.0, hi], btype="bandpass", fs=rate_hz, output="sos")
     y = sps.sosfiltfilt(sos, x)
     rms = np.sqrt(np.maximum(uniform_filter1d(y * y, size=max(3, int(2e-3 * rate_hz))), 0.0))
-    h = 0.35 * rms
-    s = np.where(y > h, 1, np.where(y < -h, -1, 0)).astype(np.int8)
-    pos = np.where(s != 0, np.arange(s.size), 0)
-    np.maximum.accumulate(pos, out=pos)
-    state = s[pos]
-    change = np.flatnonzero((state[1:] != state[:-1]) & (state[:-1] != 0)) + 1
-    zc = np.flatnonzero(np.signbit(y[1:]) != np.signbit(y[:-1])) + 1
-    if change.size == 0 or zc.size == 0:
-        return np.zeros(0)
-    j = zc[np.clip(np.searchsorted(zc, change, side="right") - 1, 0, zc.size - 1)]
-    a, b = y[j - 1], y[j]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        frac = np.where(a != b, a / (a - b), 0.0)
-    return np.unique((j - 1 + frac) / rate_hz)
+    return hysteresis_crossings(y, 0.35 * rms) / rate_hz
 
 
 def _circular_mean(z: np.ndarray, w: np.ndarray, window: int) -> np.ndarray:

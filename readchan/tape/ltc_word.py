@@ -176,7 +176,7 @@ def _put(bits: np.ndarray, pos: int, width: int, value: int) -> None:
 
 
 def _get(bits: np.ndarray, pos: int, width: int) -> int:
-    return int(sum(int(bits[pos + k]) << k for k in range(width)))
+    return int(bits[pos:pos + width].astype(np.int64) @ (1 << np.arange(width)))
 
 
 def encode_word(word: FrameWord, rate_fps: float) -> np.ndarray:
