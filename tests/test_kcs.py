@@ -114,12 +114,13 @@ def test_shallow_dropout_loses_nothing():
 
 def test_deep_dropout_in_noise_is_reported_not_hidden():
     s, r = roundtrip(data=DATA[:80], baud=300, playback=Playback(snr_db=30, dropouts=((0.6, 0.08, 60.0),)))
-    assert not r.valid and r.framing_errors
+    assert not r.valid
+    ((a, b),) = r.dropouts
+    assert 0.58 < a < 0.62 and 0.66 < b < 0.72            # the dropout spans 0.6–0.68 s
     good = [i for i, t in enumerate(s.byte_times_s) if t + 11 / 300 < 0.6 - 0.002]
     assert r.data[: len(good)] == s.data[: len(good)]
     # reading resumes after the dropout: the last 40 bytes come back intact
     assert r.data.endswith(s.data[-40:])
-    assert r.byte_times_s[r.framing_errors[0]] == pytest.approx(0.6, abs=0.05)
 
 
 def test_data_without_a_leader_is_not_read():

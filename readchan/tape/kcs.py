@@ -29,11 +29,15 @@ Demodulation from zero crossings (each interval between crossings is a half cycl
    then placed within the interval.
 5. A UART on the time axis: a start bit begins where mark turns to space; the bits are judged
    by the mark fraction over the middle 60 % of each of 11 bit cells, at the local bit time
-   (1/baud)/speed.  Stop bits that are not mark, or a cell without tone, are a framing error.
+   (1/baud)/speed.  The start cell must be tone (90 % covered) and mostly space, and at least
+   6 of the 11 cells must be tone, else there is no byte here (band-limited noise after a
+   block can fake a start).  Stop bits that are not mark, or a cell without tone, are a
+   framing error.
    The first byte of a block needs ``min_leader_s`` of mark before it.  Where the tone is lost
    for up to ``max_dropout_s`` (a dropout), 1.5 bits of idle mark before a start bit resume the
-   block (bytes cut by the dropout are framing errors, and a start found mid-byte resynchronises
-   within a few bytes, as a UART does); after a longer loss the next block needs a leader again.
+   block and the loss is recorded as a dropout (bytes cut by it are framing errors, bytes inside
+   it are missing, and a start found mid-byte resynchronises within a few bytes, as a UART
+   does); after a longer loss the next block needs a leader again.
 
 Baud rate: the durations of the mark and space runs, in 1200-baud bit cells, are multiples
 of 4 at 300 baud; when at least 80 % of them are, the capture is 300 baud, else 1200.
@@ -56,6 +60,8 @@ MARK_HZ = 2400.0
 SPACE_HZ = 1200.0
 BYTE_BITS = 11
 FORMAT = "kcs"
+MIN_TONE_CELLS = 6
+"""A byte needs tone in at least 6 of its 11 cells; fewer is noise after a block, not a byte."""
 NEAR_OCTAVE = 0.15
 """An interval is on the tone lattice when log2 of it lies within ±0.15 octave (±11 %) of a tone."""
 MIN_QUALITY = 0.5
@@ -188,9 +194,11 @@ class KcsRead:
     framing_errors : indices of bytes whose stop bits were not mark or whose cells lacked tone.
     margins : per byte, the smallest bit decision margin |2·mark fraction − 1| (1 ideal).
     speed : median tape speed relative to nominal over the bytes.
-    valid : at least one byte and no framing error.
+    valid : at least one byte, no framing error and no dropout inside a block.
     start_s, end_s : span of the bytes (first start edge, last stop bit's end), seconds.
     leader_s : length of mark before the first byte, seconds.
+    dropouts : (from_s, to_s) of each loss of tone inside a block, after which reading resumed;
+        bytes may be missing there.
     """
 
     channel: int
@@ -204,6 +212,7 @@ class KcsRead:
     start_s: float
     end_s: float
     leader_s: float
+    dropouts: tuple[tuple[float, float], ...] = ()
 
 
 def _leader_s(track: ToneTrack, t: float, min_s: float) -> float:
@@ -220,8 +229,10 @@ def _leader_s(track: ToneTrack, t: float, min_s: float) -> float:
 
 
 def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float):
-    """Bytes, start times, framing errors, margins, speeds and the leader (module docstring)."""
+    """Bytes, start times, framing errors, margins, speeds, the leader and the dropouts inside
+    blocks (module docstring)."""
     out, times, errors, margins, speeds = [], [], [], [], []
+    dropouts: list[tuple[float, float]] = []
     onsets = track.onsets_s
     centres = (np.arange(BYTE_BITS) + 0.5)[:, None]
     half = 0.3
@@ -236,21 +247,26 @@ def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float
         if in_block:
             _, cov = track.fractions(np.array([prev_end]), np.array([max(t, prev_end + 1e-9)]))
             in_block = cov[0] >= 0.8
+        lost = None
         if not in_block:
-            # after a short loss of tone, 1.5 bits of idle mark resume the block; else a leader
-            resume = t - prev_end <= max_dropout_s
-            need = 1.5 * bit_s if resume else min_leader_s
-            if not _leader_s(track, t, need) >= need:
-                k += 1
-                continue
+            # a leader opens a block; after a short loss of tone inside one, 1.5 bits of idle
+            # mark resume it and the loss is recorded as a dropout
+            idle = _leader_s(track, t, min(min_leader_s, 1.5 * bit_s))
+            if idle < min_leader_s:
+                if not (out and t - prev_end <= max_dropout_s and idle >= 1.5 * bit_s):
+                    k += 1
+                    continue
+                lost = (float(prev_end), t - idle)
         a = t + (centres[:, 0] - half) * bit_s
         b = t + (centres[:, 0] + half) * bit_s
         frac, cov = track.fractions(a, b)
-        if frac[0] >= 0.5 or cov[0] < 0.5:
-            k += 1
+        if frac[0] >= 0.5 or cov[0] < 0.9 or np.count_nonzero(cov >= 0.5) < MIN_TONE_CELLS:
+            k += 1                           # no clear start bit, or too little tone for a byte
             continue
         if not out:
             leader = _leader_s(track, t, min_leader_s)
+        if lost is not None:
+            dropouts.append(lost)
         bits = (frac > 0.5).astype(np.int64)
         out.append(int(bits[1:9] @ (1 << np.arange(8))))
         times.append(t)
@@ -265,7 +281,7 @@ def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float
         in_block = True
         prev_end = next_t
         k = int(np.searchsorted(onsets, next_t))
-    return out, times, errors, margins, speeds, leader
+    return out, times, errors, margins, speeds, leader, dropouts
 
 
 def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: int | None = None,
@@ -296,20 +312,23 @@ def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: i
     x = _channel(samples, channel)
     track = tone_track(zero_crossings(x - np.median(x), rate)) if x.size > 64 else None
     if track is None:
-        return KcsRead(channel, baud or 300, b"", np.zeros(0), (), np.zeros(0), 1.0, False, 0.0, 0.0, 0.0)
+        return KcsRead(channel, baud or 300, b"", np.zeros(0), (), np.zeros(0), 1.0, False, 0.0, 0.0, 0.0, ())
     used = baud or detect_baud(track)
-    data, times, errors, margins, speeds, leader = _uart(track, used, min_leader_s, max_dropout_s)
+    data, times, errors, margins, speeds, leader, lost = _uart(track, used, min_leader_s, max_dropout_s)
     t = np.asarray(times, float)
     sp = float(np.median(speeds)) if speeds else 1.0
     end = float(t[-1] + BYTE_BITS / (used * speeds[-1])) if times else 0.0
     return KcsRead(channel, used, bytes(data), t, tuple(errors), np.asarray(margins), sp,
-                   bool(data) and not errors, float(t[0]) if times else 0.0, end, leader)
+                   bool(data) and not errors and not lost, float(t[0]) if times else 0.0, end, leader,
+                   tuple(lost))
 
 
 def kcs_json(read: KcsRead) -> dict:
     """The JSON dict of a cassette read: common keys ``channel``, ``format`` (``"kcs"``),
     ``direction`` (always ``"forward"``), ``valid``, ``start_s``, ``end_s``; ``data_hex``,
-    ``baud``, ``framing_errors`` (byte indices), ``byte_times_s`` (start-bit leading edges)."""
+    ``baud``, ``framing_errors`` (byte indices), ``byte_times_s`` (start-bit leading edges); and
+    ``dropouts`` (``from_s``, ``to_s``: losses of tone inside a block, where bytes may be missing).
+    ``valid`` is true when there is at least one byte, no framing error and no dropout."""
     return {
         "channel": read.channel,
         "format": FORMAT,
@@ -321,4 +340,5 @@ def kcs_json(read: KcsRead) -> dict:
         "baud": read.baud,
         "framing_errors": list(read.framing_errors),
         "byte_times_s": [round(float(v), 7) for v in read.byte_times_s],
+        "dropouts": [{"from_s": round(a, 7), "to_s": round(b, 7)} for a, b in read.dropouts],
     }
