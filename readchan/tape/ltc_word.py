@@ -175,10 +175,6 @@ def _put(bits: np.ndarray, pos: int, width: int, value: int) -> None:
         bits[pos + k] = (value >> k) & 1
 
 
-def _get(bits: np.ndarray, pos: int, width: int) -> int:
-    return int(bits[pos:pos + width].astype(np.int64) @ (1 << np.arange(width)))
-
-
 def encode_word(word: FrameWord, rate_fps: float) -> np.ndarray:
     """80 bits (uint8, bit 0 first) of ``word`` at ``rate_fps``, with the polarity bit set so
     that the word holds an even number of zeros (the ``polarity`` attribute is ignored)."""
@@ -213,14 +209,32 @@ def zeros_even(bits: np.ndarray) -> bool:
     return (WORD_BITS - int(np.count_nonzero(bits))) % 2 == 0
 
 
+def _field_matrix() -> np.ndarray:
+    """Weights (80 × 13) that turn a word into its digits by one product: for each BCD field its
+    units and tens, then the 8 user-bit groups, then the user bits as one 32-bit value."""
+    cols = []
+    for up, uw, tp, tw in BCD_FIELDS.values():
+        for pos, width in ((up, uw), (tp, tw)):
+            c = np.zeros(WORD_BITS, np.int64)
+            c[pos:pos + width] = 1 << np.arange(width)
+            cols.append(c)
+    user = np.zeros(WORD_BITS, np.int64)
+    for g, pos in enumerate(USER_GROUP_BITS):
+        user[pos:pos + 4] = (1 << np.arange(4)) << (4 * g)
+    cols.append(user)
+    return np.stack(cols, axis=1)
+
+
+_FIELDS = _field_matrix()
+_TENS_LIMIT = (2, 5, 5, 2)        # frames, seconds, minutes, hours
+
+
 def bcd_valid(bits: np.ndarray) -> bool:
     """Every BCD digit of the label in range: units 0–9, frame tens 0–2, seconds and minutes
     tens 0–5, hours 0–23."""
-    for name, limit in (("frames", 2), ("seconds", 5), ("minutes", 5), ("hours", 2)):
-        up, uw, tp, tw = BCD_FIELDS[name]
-        if _get(bits, up, uw) > 9 or _get(bits, tp, tw) > limit:
-            return False
-    return _get(bits, 56, 2) * 10 + _get(bits, 48, 4) < 24
+    v = np.asarray(bits, np.int64) @ _FIELDS
+    units, tens = v[0:8:2], v[1:8:2]
+    return bool((units <= 9).all() and (tens <= _TENS_LIMIT).all() and tens[3] * 10 + units[3] < 24)
 
 
 def decode_word(bits: np.ndarray, rate_fps: float = 30.0) -> FrameWord:
@@ -234,12 +248,8 @@ def decode_word(bits: np.ndarray, rate_fps: float = 30.0) -> FrameWord:
         raise FormatError("bits 64–79 are not the LTC sync word")
     if not bcd_valid(b):
         raise FormatError("a BCD digit of the timecode is out of range")
-    values = {}
-    for name, (up, uw, tp, tw) in BCD_FIELDS.items():
-        values[name] = _get(b, tp, tw) * 10 + _get(b, up, uw)
-    user = 0
-    for g, pos in enumerate(USER_GROUP_BITS):
-        user |= _get(b, pos, 4) << (4 * g)
+    v = (b.astype(np.int64) @ _FIELDS).tolist()
+    frames, seconds, minutes, hours = (v[2 * k + 1] * 10 + v[2 * k] for k in range(4))
     pol, *bgf_pos = FAMILY_BITS[family(rate_fps)]
-    return FrameWord(Label(values["hours"], values["minutes"], values["seconds"], values["frames"]),
-                     bool(b[10]), bool(b[11]), user, tuple(int(b[p]) for p in bgf_pos), int(b[pol]))
+    return FrameWord(Label(hours, minutes, seconds, frames), bool(b[10]), bool(b[11]), v[8],
+                     tuple(int(b[p]) for p in bgf_pos), int(b[pol]))
