@@ -263,7 +263,9 @@ def _plot_empty(sf, ch: ChannelReport) -> int:
     ax.set_xlim(0, fe.duration_s)
     ax.set_xlabel("time (s)", fontsize=8)
     ax.set_ylabel(f"signal ({fe.units})", fontsize=8)
+    st = ch.result.status
+    why = f"\n{st.reason}" if st is not None and st.reason else ""
     ax.set_title(f"channel {fe.channel}: no framed data; {fe.n_transitions} transitions (blue), "
-                 f"{len(ch.result.segments)} stretches (shaded)", fontsize=9, loc="left")
+                 f"{len(ch.result.segments)} stretches (shaded){why}", fontsize=9, loc="left", wrap=True)
     ax.tick_params(labelsize=8)
     return 1
