@@ -367,3 +367,8 @@ def test_synth_and_sweep_default_to_the_same_speed_profile():
     defaults = {name: next(p.default for p in group.commands[name].params if p.name == "profile")
                 for name in ("synth", "sweep")}
     assert defaults["synth"] == defaults["sweep"]
+
+
+def test_inspect_names_the_timing_margin_in_the_trades_words(monkeypatch, capsys):
+    _, out, _ = run(monkeypatch, capsys, "inspect", FIXTURES / "track2-scope.csv")
+    assert "timing margin worst" in out and "decision margin" not in out
