@@ -451,3 +451,10 @@ def test_a_wide_capture_of_noise_columns_still_reads_its_swipe(swipe):
     results = decode_capture(Capture(cols, rate))
     assert [r.frame.text for r in reads_of(results) if r.valid] == [TEXT]
     assert [ch.status.state for ch in results[1:]] == ["no-activity"] * 39
+
+
+def test_sweep_plot_with_a_300_character_name_is_refused_before_the_trials(tmp_path, monkeypatch, capsys):
+    code, out, err = run_cli(monkeypatch, capsys, "sweep", "jitter", "--values", "0,0.1", "--trials", "1",
+                             "--plot", tmp_path / f"{LONG}.png")
+    assert code == 2 and out == ""
+    assert "too long" in one_line_error(err)
