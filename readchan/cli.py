@@ -144,7 +144,7 @@ class Output(str, Enum):
 
 
 def _settings(fmt: str, kind: Kind | str, track: Optional[int], notch: str, lowpass_hz: Optional[float],
-              highpass_hz: float):
+              highpass_hz: float, field_check: bool = True):
     from readchan.condition import ConditionSettings
     from readchan.decode import DecodeSettings
     from readchan.formats import parse_format
@@ -157,7 +157,8 @@ def _settings(fmt: str, kind: Kind | str, track: Optional[int], notch: str, lowp
     else:
         notch_v = notch
     cs = ConditionSettings(highpass_hz=highpass_hz or None, lowpass_hz=lowpass_hz)
-    return DecodeSettings(fmt=parse_format(fmt), kind=Kind(kind).value, track=track, condition=cs, notch=notch_v)
+    return DecodeSettings(fmt=parse_format(fmt), kind=Kind(kind).value, track=track, condition=cs, notch=notch_v,
+                          field_check=field_check)
 
 
 def _channels(channel: Optional[list[int]]):
@@ -180,6 +181,10 @@ LOWPASS = typer.Option(None, "--lowpass-hz", help="Optional low-pass corner in H
 HIGHPASS = typer.Option(20.0, "--highpass-hz", help="Baseline-removal high-pass corner in Hz (0: off).")
 JSON = typer.Option(False, "--json", help="Print one JSON object on stdout.")
 UNMASK = typer.Option(False, "--unmask", help="Show account numbers whole (only for cards you may read).")
+FIELD_CHECK = typer.Option(True, "--field-check/--no-field-check",
+                           help="A read claiming an ISO/IEC 7813 layout (track 1 format B, track 2) that breaks it "
+                                "(account digits, Luhn check digit, expiry) is not valid; turn off for non-financial "
+                                "cards that reuse the layouts.")
 
 
 @app.command()
@@ -195,6 +200,7 @@ def decode(
     highpass_hz: float = HIGHPASS,
     as_json: bool = JSON,
     unmask: bool = UNMASK,
+    field_check: bool = FIELD_CHECK,
     kind_old: Optional[Kind] = SIGNAL_OLD,
     rate_old: Optional[float] = RATE_OLD,
 ) -> None:
@@ -205,7 +211,7 @@ def decode(
 
     kind = renamed("--kind", "--signal", kind_old, signal, Kind.auto)
     rate = renamed("--rate", "--rate-hz", rate_old, rate_hz)
-    settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz)
+    settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz, field_check)
     all_reads, all_results, channels = [], [], []
     for path in captures:
         cap = load_capture(path, rate_hz=rate)

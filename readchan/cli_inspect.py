@@ -18,7 +18,7 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from readchan.cli import (CAPTURES, CHANNEL, FORMAT, HIGHPASS, JSON, LOWPASS, NOTCH, RATE_HZ, RATE_OLD, SIGNAL,
+from readchan.cli import (CAPTURES, CHANNEL, FIELD_CHECK, FORMAT, HIGHPASS, JSON, LOWPASS, NOTCH, RATE_HZ, RATE_OLD, SIGNAL,
                           SIGNAL_OLD, TRACK, UNMASK, Kind, _channels, _settings, app, err, out, renamed, schema)
 from readchan.diagnose import ChannelReport, ReadReport, noise_source_text
 from readchan.errors import ParameterError
@@ -42,6 +42,7 @@ def inspect(
     highpass_hz: float = HIGHPASS,
     as_json: bool = JSON,
     unmask: bool = UNMASK,
+    field_check: bool = FIELD_CHECK,
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write plots to this .png (.pdf, .svg) file; with "
                                         "several captures, one file each, named FILE-<capture>.png."),
     force: bool = typer.Option(False, help="Overwrite the --plot file(s) if they exist (regular files only)."),
@@ -55,7 +56,7 @@ def inspect(
 
     kind = renamed("--kind", "--signal", kind_old, signal, Kind.auto)
     rate = renamed("--rate", "--rate-hz", rate_old, rate_hz)
-    settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz)
+    settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz, field_check)
     targets = _plot_targets(plot, captures, force) if plot is not None else [None] * len(captures)
     doc_reads, doc_channels, all_reads, all_results = [], [], [], []
     for path, target in zip(captures, targets):
@@ -121,7 +122,7 @@ def _trace(t: np.ndarray, y: np.ndarray, n: int = TRACE_POINTS) -> list:
 def _char(r: ReadReport, c: int | None, unmask: bool) -> str | None:
     if c is None:
         return None
-    text = mask_text(r.read.frame.text, r.read.frame.format, unmask)
+    text = mask_text(r.read.frame.text, r.read.frame.format, unmask, trusted=r.read.valid)
     return text[c] if c < len(text) else "LRC"
 
 
@@ -180,8 +181,10 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
         "density_bpi": _f(tm.density_bpi),
         "format": fr.format,
         "direction": fr.direction,
-        "text": mask_text(fr.text, fr.format, unmask),
-        "valid": bool(fr.valid),
+        "text": mask_text(fr.text, fr.format, unmask, trusted=rd.valid),
+        "valid": bool(rd.valid),
+        "checks_ok": bool(fr.valid),
+        "rejected": rd.rejected,
         "start_s": _f(rd.start_s),
         "end_s": _f(rd.end_s),
         "bits": int(len(rd.bits)),
@@ -369,7 +372,7 @@ def print_inspect(console: Console, source: str, reports: list[ChannelReport], *
                         f"{rd.start_s:.3f}–{rd.end_s:.3f} s, ")
             head.append(mark)
             console.print(head)
-            console.print("  " + mask_text(rd.frame.text, rd.frame.format, unmask), soft_wrap=True,
+            console.print("  " + mask_text(rd.frame.text, rd.frame.format, unmask, trusted=rd.valid), soft_wrap=True,
                           highlight=False, markup=False)
             t = Table(show_header=False, box=None, pad_edge=False, padding=(0, 2, 0, 2))
             t.add_column(style="bold")

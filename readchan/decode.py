@@ -21,7 +21,8 @@ from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, cla
                              detect_head, detect_logic, pulse_width_s)
 from readchan.density import TrackEvidence, clocking_pw50_cell, decide_track, leading_zeros
 from readchan.errors import ParameterError
-from readchan.fields import CardFields, parse_fields
+from readchan.evidence import MAX_DAMAGED_CHARS, damage_evidence, damaged_characters
+from readchan.fields import CardFields, layout_errors, parse_fields
 from readchan.formats import KNOWN_FORMATS, TRACKS, CharFormat, TrackSpec
 from readchan.framing import Frame, frame, frame_auto
 from readchan.recover import Recovery, confirm_correction, recover
@@ -50,6 +51,9 @@ class DecodeSettings:
         :func:`readchan.detect.auto_lowpass_hz` and :func:`readchan.detect.auto_highpass_hz`).
     recover : on a failed read, search the least confident bit decisions for the unique
         reading that passes every check (:mod:`readchan.recover`).
+    field_check : a read that claims an ISO/IEC 7813 layout (track 1 format code B, or track 2)
+        and breaks it (:func:`readchan.fields.layout_errors`) is not valid; turn off for
+        non-financial cards that reuse the layouts.
     """
 
     fmt: CharFormat | None = None
@@ -61,6 +65,7 @@ class DecodeSettings:
     loop_gain: float = 0.25
     auto_band: bool = True
     recover: bool = True
+    field_check: bool = True
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -116,6 +121,12 @@ class Read:
     mean_speed_cm_s : mean swipe speed from the bit period and the track density.
     recovery : the parity-guided recovery search, when the read first failed its checks.
     track_evidence : why ``track`` was assumed (:mod:`readchan.density`).
+    rejected : why a read whose checks pass is not valid, or None: ``"suspect"`` (physical
+        damage in more than one character, :mod:`readchan.evidence`) or ``"fields"`` (it
+        claims an ISO/IEC 7813 layout and breaks it).
+    damaged_chars : characters of the frame (index into its text; ``len(text)`` is the LRC
+        character) holding physical evidence of damage, with the kinds of evidence.
+    field_errors : how the read breaks the layout it claims (empty when it does not).
     """
 
     source: str
@@ -129,10 +140,19 @@ class Read:
     mean_speed_cm_s: float | None
     recovery: Recovery | None = None
     track_evidence: TrackEvidence | None = None
+    rejected: str | None = None
+    damaged_chars: tuple[tuple[int, tuple[str, ...]], ...] = ()
+    field_errors: tuple[str, ...] = ()
+
+    @property
+    def checks_ok(self) -> bool:
+        """Parity and LRC pass (after any correction)."""
+        return bool(self.frame.valid)
 
     @property
     def valid(self) -> bool:
-        return bool(self.frame.valid)
+        """The checks pass and nothing speaks against them (see ``rejected``)."""
+        return bool(self.frame.valid) and self.rejected is None
 
     @property
     def start_s(self) -> float:
@@ -350,10 +370,26 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
     skipped: list = []
     reads = reads_from(tr, segs, settings, channel=channel, n_channels=n_channels, source=source, skipped=skipped)
     reads = assign_tracks(reads, x, rate_hz, settings, kind=kind, channel=channel, n_channels=n_channels)
+    if settings.field_check:
+        reads = check_fields(reads)
     from readchan.status import channel_status
 
     status = channel_status(x, rate_hz, channel, tr, segs, reads, skipped, settings.fmt)
     return ChannelResult(channel, kind, cond, tr, tuple(segs), reads, hum, status, outliers)
+
+
+def check_fields(reads: tuple[Read, ...]) -> tuple[Read, ...]:
+    """Each read whose checks pass, with how it breaks the ISO/IEC 7813 layout it claims on its
+    (decided) track (:func:`readchan.fields.layout_errors`); such a read is not valid
+    (``rejected="fields"``) unless it is already ``"suspect"``."""
+    out = []
+    for r in reads:
+        errors = layout_errors(r.frame.text, r.frame.format, r.track.number if r.track else None) \
+            if r.frame.valid else ()
+        if errors:
+            r = replace(r, field_errors=errors, rejected=r.rejected or "fields")
+        out.append(r)
+    return tuple(out)
 
 
 def assign_tracks(reads: tuple[Read, ...], x: np.ndarray, rate_hz: float, settings: DecodeSettings, *,
@@ -442,7 +478,13 @@ def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], setti
         speed = mean_speed_cm_s(bs, track.density_bpi) if track else None
         # track 3 follows ISO 4909, whose fields readchan does not interpret
         fields = parse_fields(fr.text, fr.format) if not (track and track.number == 3) else None
-        reads.append(Read(source, channel, seg, sub, bs, fr, fields, track, speed, recovery))
+        rejected, damaged = None, ()
+        if fr.valid:
+            damaged = damaged_characters(fr, damage_evidence(sub, bs), fr.corrected)
+            if len(damaged) > MAX_DAMAGED_CHARS:
+                rejected = "suspect"
+        reads.append(Read(source, channel, seg, sub, bs, fr, fields, track, speed, recovery,
+                          rejected=rejected, damaged_chars=damaged))
     return tuple(reads)
 
 

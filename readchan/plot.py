@@ -5,7 +5,8 @@ Each read gets five panels, legible for a capture of 10,000 bits:
 1. the waveform over the read, min/max-decimated to the panel's width, with the read's span,
    its transitions and its anomalies marked;
 2. a zoom at the start sentinel: samples, detected pulses, every bit's value over its cell and
-   the character boundaries with the characters (account numbers masked);
+   the character boundaries with the characters (account numbers masked: a masked character
+   gets neither its label nor its bits' values, which would spell it out);
 3. the same zoom around the bit of least timing margin;
 4. the normalised intervals r = Δ/T along the swipe with the half-cell (0.5), boundary (0.75)
    and full-cell (1.0) lines and the band where the margin is below its verdict limit;
@@ -42,6 +43,18 @@ def plot_reports(reports: list[ChannelReport], path: str | Path, *, unmask: bool
     """Draw every read of ``reports`` into one figure and write it to ``path`` (PNG, PDF or SVG,
     by suffix), atomically; an existing file is replaced only with ``force``.  Returns the
     number of panels drawn."""
+    fig, panels = report_figure(reports, unmask=unmask, title=title)
+    _save(fig, Path(path), dpi, force)
+    return panels
+
+
+def report_figure(reports: list[ChannelReport], *, unmask: bool = False,
+                  title: str | None = None) -> tuple[Figure, int]:
+    """The figure of :func:`plot_reports` and its number of panels, unsaved.
+
+    Without ``unmask``, masked characters (account digits, see
+    :func:`readchan.fields.mask_text`) get neither a label nor the values of their bits.
+    """
     reads = [(ch, r) for ch in reports for r in ch.reads]
     empty = [ch for ch in reports if not ch.reads]
     cells = len(reads) + len(empty)
@@ -66,8 +79,7 @@ def plot_reports(reports: list[ChannelReport], path: str | Path, *, unmask: bool
         panels += _plot_empty(sf, ch)
     for k in range(cells, nrows * ncols):
         subs[k // ncols, k % ncols].set_visible(False)
-    _save(fig, Path(path), dpi, force)
-    return panels
+    return fig, panels
 
 
 def _save(fig: Figure, path: Path, dpi: int, force: bool = False) -> None:
@@ -112,7 +124,7 @@ def _plot_read(sf, ch: ChannelReport, r: ReadReport, unmask: bool) -> int:
                 f"{len(rd.bits)} bits, {status}\n{r.verdict}", fontsize=10,
                 color="black" if not r.failed else "firebrick")
     _overview(ax_over, ch, r)
-    text = mask_text(rd.frame.text, rd.frame.format, unmask)
+    text = mask_text(rd.frame.text, rd.frame.format, unmask, trusted=rd.valid)
     ss = rd.frame.bit_index[0]          # the start sentinel's bits (time order differs by direction)
     start = int(ss.min()) - 8 if rd.frame.direction == "forward" else int(ss.max()) + 9 - ZOOM_BITS
     _zoom(ax_z1, ch, r, max(0, start), text, "at the start sentinel")
@@ -169,11 +181,14 @@ def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, where: st
     top = top if top > 0 else 1.0
     ax.set_ylim(-1.25 * top, 1.55 * top)
     bc = r.bit_char()
+    raw = rd.frame.text
+    hidden = {c for c in range(len(text)) if text[c] != raw[c]}     # masked characters
     for k in range(start, stop):
         ts = float(bs.start_s[k])
         te = float(bs.start_s[k + 1]) if k + 1 < n else ts + float(bs.period_s[k])
-        ax.text(0.5 * (ts + te), 1.12 * top, str(int(bs.bits[k])), ha="center", va="center", fontsize=7,
-                color="tab:red" if bs.bits[k] else "tab:blue")
+        if int(bc[k]) not in hidden:        # a masked character's bits would spell it out
+            ax.text(0.5 * (ts + te), 1.12 * top, str(int(bs.bits[k])), ha="center", va="center", fontsize=7,
+                    color="tab:red" if bs.bits[k] else "tab:blue")
         ax.axvline(ts, color="0.85", lw=0.5, zorder=0)
         if k == start or bc[k] != bc[k - 1]:
             if bc[k] >= 0:
@@ -183,6 +198,8 @@ def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, where: st
                 ks = np.flatnonzero(bc[start:stop] == c) + start
                 te_c = float(bs.start_s[ks[-1] + 1]) if ks[-1] + 1 < n else te
                 label = text[c] if c < len(text) else "LRC"
+                if c in hidden:
+                    continue
                 ax.text(0.5 * (float(bs.start_s[ks[0]]) + te_c), 1.40 * top, label, ha="center", va="center",
                         fontsize=9, fontweight="bold", color="tab:purple")
     if mark_bit is not None and start <= mark_bit < stop:

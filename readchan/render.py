@@ -28,8 +28,12 @@ def read_dict(r: Read, *, unmask: bool = False) -> dict:
         "track_basis": None if r.track_evidence is None else r.track_evidence.basis,
         "track_evidence": None if r.track_evidence is None else r.track_evidence.text(),
         "direction": f.direction,
-        "text": mask_text(f.text, f.format, unmask),
-        "valid": bool(f.valid),
+        "text": mask_text(f.text, f.format, unmask, trusted=r.valid),
+        "valid": bool(r.valid),
+        "checks_ok": bool(f.valid),
+        "rejected": r.rejected,
+        "damaged_chars": [{"char": c, "evidence": list(kinds)} for c, kinds in r.damaged_chars],
+        "field_errors": list(r.field_errors),
         "complete": bool(f.complete),
         "parity_failed": [int(i) for i in (~np.asarray(f.parity_ok, bool)).nonzero()[0]],
         "lrc_ok": bool(f.lrc_ok),
@@ -40,7 +44,7 @@ def read_dict(r: Read, *, unmask: bool = False) -> dict:
         "start_s": round(float(r.start_s), 6),
         "end_s": round(float(r.end_s), 6),
         "mean_speed_cm_s": None if r.mean_speed_cm_s is None else round(r.mean_speed_cm_s, 2),
-        "fields": None if r.fields is None else r.fields.to_dict(unmask=unmask),
+        "fields": None if r.fields is None else r.fields.to_dict(unmask=unmask, trusted=r.valid),
         "recovery": None if r.recovery is None else {
             "candidates": r.recovery.candidates,
             "passing": r.recovery.passing,
@@ -111,6 +115,18 @@ def warning_lines(source: str, results: list[ChannelResult]) -> list[str]:
     return out
 
 
+def verdict_text(r: Read) -> Text:
+    """``valid``; ``invalid`` (the checks failed); ``suspect c1,c2`` (the checks pass but
+    physical damage lies in those characters); ``fields`` (a broken ISO/IEC 7813 layout)."""
+    if r.valid:
+        return Text("valid", style="green")
+    if r.rejected == "suspect":
+        return Text("suspect " + ",".join(str(c) for c, _ in r.damaged_chars), style="bold red")
+    if r.rejected is not None:
+        return Text(r.rejected, style="bold red")
+    return Text("invalid", style="bold red")
+
+
 def _verdict(ok: bool, good: str = "ok", bad: str = "FAIL") -> Text:
     return Text(good, style="green") if ok else Text(bad, style="bold red")
 
@@ -118,7 +134,8 @@ def _verdict(ok: bool, good: str = "ok", bad: str = "FAIL") -> Text:
 def decode_table(reads: list[Read], *, unmask: bool = False, title: str | None = None) -> Table:
     """A rich table with one row per read; the characters follow in :func:`text_lines`."""
     t = Table(title=title, show_lines=False, header_style="bold", title_justify="left")
-    for col in ("read", "ch", "track", "format", "direction", "chars", "parity", "LRC", "bits", "cm/s", "time s"):
+    for col in ("read", "ch", "track", "format", "direction", "chars", "parity", "LRC", "verdict", "bits", "cm/s",
+                "time s"):
         t.add_column(col, no_wrap=True)
     for n, r in enumerate(reads):
         f = r.frame
@@ -130,7 +147,8 @@ def decode_table(reads: list[Read], *, unmask: bool = False, title: str | None =
         lrc = _verdict(f.lrc_ok) if f.complete else Text(missing_end(f), style="bold red")
         speed = "" if r.mean_speed_cm_s is None else f"{r.mean_speed_cm_s:.1f}"
         t.add_row(str(n), str(r.channel), str(r.track.number) if r.track else "?", f.format, f.direction,
-                  str(len(f.text)), parity, lrc, str(len(r.bits)), speed, f"{r.start_s:.3f}–{r.end_s:.3f}")
+                  str(len(f.text)), parity, lrc, verdict_text(r), str(len(r.bits)), speed,
+                  f"{r.start_s:.3f}–{r.end_s:.3f}")
     return t
 
 
@@ -141,7 +159,13 @@ def text_lines(reads: list[Read], *, unmask: bool = False) -> list[Text]:
         mark = Text("valid  ", style="green") if r.valid else Text("INVALID", style="bold red")
         line = Text(f"read {n}  ")
         line.append(mark)
-        line.append("  " + mask_text(r.frame.text, r.frame.format, unmask))
+        line.append("  " + mask_text(r.frame.text, r.frame.format, unmask, trusted=r.valid))
+        if r.rejected == "suspect":
+            where = "; ".join(f"char {c}: {', '.join(k)}" for c, k in r.damaged_chars)
+            line.append(f"  (checks pass, but damage in more than one character: {where})", style="yellow")
+        elif r.rejected == "fields":
+            line.append(f"  (checks pass, but the ISO/IEC 7813 layout is broken: {'; '.join(r.field_errors)})",
+                        style="yellow")
         lines.append(line)
     return lines
 
@@ -152,7 +176,7 @@ def field_lines(reads: list[Read], *, unmask: bool = False) -> list[Text]:
     for n, r in enumerate(reads):
         if r.fields is None:
             continue
-        d = r.fields.to_dict(unmask=unmask)
+        d = r.fields.to_dict(unmask=unmask, trusted=r.valid)
         line = Text(f"read {n}  {d['layout']}: account {d['pan']} (Luhn ")
         line.append(_verdict(bool(d["luhn_ok"]), "ok", "FAIL"))
         line.append(")")

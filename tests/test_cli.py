@@ -70,12 +70,12 @@ def test_scope_csv_is_decoded_with_its_time_column(monkeypatch, capsys):
 
 def test_synth_then_decode_round_trips_through_files(monkeypatch, capsys, tmp_path):
     out_wav = tmp_path / "card.wav"
-    code, _, err = run(monkeypatch, capsys, "synth", out_wav, "--track2", ";1234567890=2512?", "--snr-db", "30",
+    code, _, err = run(monkeypatch, capsys, "synth", out_wav, "--track2", ";1234567897=2512?", "--snr-db", "30",
                        "--reverse", "--profile", "swipe", "--variation", "0.2")
     assert code == 0 and "PW50" in err
     code, out, _ = run(monkeypatch, capsys, "decode", "--json", "--unmask", out_wav)
     r = json.loads(out)["reads"][0]
-    assert code == EXIT_VALID and r["text"] == ";1234567890=2512?" and r["direction"] == "reverse"
+    assert code == EXIT_VALID and r["text"] == ";1234567897=2512?" and r["direction"] == "reverse"
 
 
 def test_synth_refuses_to_overwrite_without_force(monkeypatch, capsys, tmp_path):

@@ -226,8 +226,8 @@ def test_text_that_is_not_a_financial_layout_gives_none():
 # --------------------------------------------------------------------------- JSON and masking
 
 
-def test_json_dict_masks_the_account_number_by_default():
-    d = parse_fields(TRACK1, "iso-alpha").to_dict()
+def test_json_dict_of_a_trusted_read_masks_the_account_number_by_its_layout():
+    d = parse_fields(TRACK1, "iso-alpha").to_dict(trusted=True)
     assert d["pan"] == mask_pan(PAN16)
     assert d["pan_length"] == 16
     assert PAN16 not in json.dumps(d)
@@ -245,9 +245,32 @@ def test_the_repr_of_card_fields_masks_the_account_number():
     assert isinstance(parse_fields(TRACK2, "iso-bcd"), CardFields)
 
 
-def test_masked_text_hides_the_account_number_of_a_parsed_track():
-    assert mask_text(TRACK1, "iso-alpha") == TRACK1.replace(PAN16, mask_pan(PAN16))
-    assert mask_text(TRACK2, "iso-bcd") == TRACK2.replace(PAN16, mask_pan(PAN16))
+def test_json_dict_of_an_untrusted_read_shows_no_account_digit():
+    d = parse_fields(TRACK1, "iso-alpha").to_dict()
+    assert d["pan"] == "*" * 16 and d["name"] == "QUILL/ODESSA M"
+    assert not any(ch.isdigit() for ch in d["pan"])
+
+
+def test_masked_text_of_a_trusted_read_masks_the_account_number_by_its_layout():
+    # PCI DSS v3.2.1 req. 3.3: at most the first six and last four digits
+    assert mask_text(TRACK1, "iso-alpha", trusted=True) == TRACK1.replace(PAN16, mask_pan(PAN16))
+    assert mask_text(TRACK2, "iso-bcd", trusted=True) == TRACK2.replace(PAN16, mask_pan(PAN16))
+
+
+def test_masked_text_of_an_untrusted_read_hides_every_digit_of_the_account_region():
+    masked = mask_text(TRACK2, "iso-bcd")
+    assert masked[:18] == ";" + "*" * 16 + "="
+
+
+def test_a_digit_turned_separator_leaks_no_account_digit_from_text_or_fields():
+    # one flipped bit turns the 7th account digit into '=': the rest of the account number
+    # then looks like the expiry, service code and discretionary data
+    text = f";{PAN16[:6]}={PAN16[7:]}=29121010000000000?"
+    assert mask_text(text, "iso-bcd")[:18] == ";******=*********="
+    d = parse_fields(text, "iso-bcd").to_dict()
+    shown = json.dumps(d)
+    for k in range(6, 16 - 4 + 1):
+        assert PAN16[k:k + 4] not in shown
 
 
 def test_unmasked_text_is_unchanged():
@@ -256,7 +279,7 @@ def test_unmasked_text_is_unchanged():
 
 def test_a_cut_short_track1_read_is_masked_too():
     text = f"%B{PAN16}^QUILL/OD"
-    assert mask_text(text, "iso-alpha") == f"%B{mask_pan(PAN16)}^QUILL/OD"
+    assert mask_text(text, "iso-alpha") == "%B" + "*" * 16 + "^QUILL/OD"
 
 
 def test_a_damaged_account_number_has_every_digit_hidden():
@@ -267,7 +290,7 @@ def test_a_damaged_account_number_has_every_digit_hidden():
 
 def test_a_semicolon_and_12_digits_without_a_layout_are_masked():
     text = ";" + PAN16[:12]
-    assert mask_text(text, "iso-bcd") == ";" + mask_pan(PAN16[:12])
+    assert mask_text(text, "iso-bcd") == ";" + "*" * 12
 
 
 def test_long_digit_runs_in_a_users_format_are_masked():
