@@ -368,7 +368,9 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
         cond, tr, hum = _detect_head_channel(x, rate_hz, settings, channel)
     segs = segment(tr)
     skipped: list = []
-    reads = reads_from(tr, segs, settings, channel=channel, n_channels=n_channels, source=source, skipped=skipped)
+    clipped = kind == "head" and clipped_fraction(x) > CLIPPED_FRACTION
+    reads = reads_from(tr, segs, settings, channel=channel, n_channels=n_channels, source=source, skipped=skipped,
+                       clipped=clipped)
     reads = assign_tracks(reads, x, rate_hz, settings, kind=kind, channel=channel, n_channels=n_channels)
     if settings.field_check:
         reads = check_fields(reads)
@@ -428,12 +430,19 @@ def assign_tracks(reads: tuple[Read, ...], x: np.ndarray, rate_hz: float, settin
 def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], settings: DecodeSettings, *,
                channel: int = 0, n_channels: int = 1, source: str = "",
                period_at: Callable[[np.ndarray], np.ndarray] | None = None,
-               skipped: list | None = None) -> tuple[Read, ...]:
-    """Timing recovery, framing, checks, recovery and fields for each segment of ``tr``.
+               skipped: list | None = None, clipped: bool = False) -> tuple[Read, ...]:
+    """Timing recovery, framing, checks, recovery, acceptance and fields for each segment of ``tr``.
 
     ``period_at`` (a function of time giving the bit period in seconds) replaces the timing
     loop's estimate: the reference decoder of the accuracy benchmark.  ``skipped``, when a
     list, receives a :class:`readchan.status.Skipped` for each segment that gave no read.
+    ``clipped``: the capture was clipped, which raises the floors of the timing evidence
+    (:data:`readchan.evidence.CLIPPED_FLOORS`).
+
+    Acceptance: a read whose checks pass is still not valid when the physical evidence of
+    damage (:func:`readchan.evidence.damage_evidence`) touches more than
+    :data:`readchan.evidence.MAX_DAMAGED_CHARS` character (``rejected="suspect"``); the field
+    check (:func:`check_fields`) follows once the track is decided.
     """
     from readchan.status import Skipped
 
@@ -480,7 +489,7 @@ def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], setti
         fields = parse_fields(fr.text, fr.format) if not (track and track.number == 3) else None
         rejected, damaged = None, ()
         if fr.valid:
-            damaged = damaged_characters(fr, damage_evidence(sub, bs), fr.corrected)
+            damaged = damaged_characters(fr, damage_evidence(sub, bs, clipped=clipped), fr.corrected)
             if len(damaged) > MAX_DAMAGED_CHARS:
                 rejected = "suspect"
         reads.append(Read(source, channel, seg, sub, bs, fr, fields, track, speed, recovery,

@@ -37,7 +37,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK, Transitions
+from readchan.detect import FLAG_EXTRA, FLAG_MISSING, Transitions
 from readchan.framing import Frame
 from readchan.timing import BitStream
 
@@ -50,7 +50,8 @@ MAX_DAMAGED_CHARS = 1
 """Most characters a valid read may hold evidence of damage in."""
 
 ODD_INTERVAL = 0.15
-"""Least distance (cells) from both a half and a whole cell of an interval that is neither."""
+"""Least distance (cells) from both a half and a whole cell of an interval that is neither
+(so 0.65–0.85 cells, or outside 0.35–1.15)."""
 
 OUTLIER = 8.0
 """A timing statistic counts as evidence above this many robust standard deviations of its
@@ -59,13 +60,21 @@ own spread over the read."""
 PULSE_SIZE = float(np.log(1.6))
 """Least size (natural log of the ratio to the read's typical pulse) of a pulse that stands out."""
 
-GUESS_FLAGS = np.uint8(FLAG_EXTRA | FLAG_WEAK | FLAG_MISSING)
-"""Detector flags that count as a guessed pulse."""
+CLIPPED_FLOORS = {"odd interval": 0.25, "phase step": 0.3, "period step": 0.06}
+"""Floors of the timing evidence in a clipped capture (pulses timed by the middle of flat
+crests): clipping on a wandering baseline moves good pulses' timing by up to 0.2 cell, so
+there only intervals outside 0.25–1.25 cells, phase steps over 0.3 cell and period steps over
+6 % count."""
+
+GUESS_FLAGS = np.uint8(FLAG_EXTRA | FLAG_MISSING)
+"""Detector flags that count as a guessed pulse: a noise peak dropped beside a pulse, or a
+polarity break.  A pulse rescued below threshold (``FLAG_WEAK``) does not count: clipped crests
+on a wandering baseline need such rescues on good reads."""
 
 WINDOW = 8
 """Cell boundaries fitted on each side of a bit for the phase and period steps."""
 
-PHASE_STEP = 0.1
+PHASE_STEP = 0.15
 """Least phase step (cells) that counts as a jump of the clock."""
 
 PERIOD_STEP = 0.04
@@ -159,10 +168,11 @@ def pulse_size(tr: Transitions) -> tuple[np.ndarray, float]:
     return dev, _scale(dev[ok]) if ok.any() else 0.0
 
 
-def damage_evidence(tr: Transitions, bs: BitStream) -> dict[str, np.ndarray]:
+def damage_evidence(tr: Transitions, bs: BitStream, *, clipped: bool = False) -> dict[str, np.ndarray]:
     """Indices of the bits of ``bs`` carrying each kind of :data:`EVIDENCE`.
 
-    ``tr`` are the read's transitions (``bs.first_transition`` indexes them).  The timing
+    ``tr`` are the read's transitions (``bs.first_transition`` indexes them); ``clipped``:
+    the capture was clipped (:data:`CLIPPED_FLOORS` apply).  The timing
     kinds are judged against the read's own spread: a statistic counts when it exceeds both
     a floor and :data:`OUTLIER` times the read's robust spread of it, so a read whose every
     interval wanders (heavy jitter, a worn card) raises its own bar and a clean read shows a
@@ -180,6 +190,7 @@ def damage_evidence(tr: Transitions, bs: BitStream) -> dict[str, np.ndarray]:
     st = bit_statistics(bs)
     for name, key, floor in (("odd interval", "deviation", ODD_INTERVAL), ("phase step", "phase", PHASE_STEP),
                              ("period step", "period", PERIOD_STEP)):
+        floor = CLIPPED_FLOORS[name] if clipped else floor
         limit = max(floor, OUTLIER * float(st[key + "_scale"]))
         out[name] = np.flatnonzero(st[key] > limit)
     if tr.kind == "head" and len(tr):
