@@ -37,7 +37,7 @@ def _reproduction(seed: int, filtered: bool = True):
 @pytest.mark.parametrize("seed", range(20))
 def test_track_2_through_a_causal_2nd_order_preamp_at_2_2x_the_pulse_rate_decodes(seed):
     cap, text = _reproduction(seed)
-    reads = decode_reads(cap)
+    reads = decode_reads(cap, field_check=False)  # random content: no 7813 layout
     assert [(r.frame.text, r.valid) for r in reads] == [(text, True)]
 
 

@@ -62,7 +62,7 @@ def hard_scenario(draw):
 def test_hard_swipes_decode_to_the_exact_text_valid_and_in_the_right_direction(sc):
     track, text, speed, imp, pulse, rate, seed, _ = sc
     cap, _ = synth_capture({track: text}, rate_hz=rate, speed=speed, imp=imp, pulse=pulse, seed=seed)
-    reads = decode_reads(cap)
+    reads = decode_reads(cap, field_check=False)  # random content: no 7813 layout
     assert len(reads) == 1
     (r,) = reads
     assert r.valid and r.frame.text == text
@@ -72,7 +72,7 @@ def test_hard_swipes_decode_to_the_exact_text_valid_and_in_the_right_direction(s
 def test_three_swipes_in_one_capture_are_three_reads_in_time_order(demo_texts):
     cap, res = synth_capture({1: demo_texts[1]}, imp=Impairments(snr_db=25, jitter=0.03), swipes=3,
                              gap_s=0.15, speed=SpeedProfile(35.0, "swipe", 0.3), seed=9)
-    reads = decode_reads(cap)
+    reads = decode_reads(cap, field_check=False)  # random content: no 7813 layout
     assert [r.frame.text for r in reads] == [demo_texts[1]] * 3
     for r, (t0, t1) in zip(reads, res.swipe_windows_s):
         assert t0 <= r.start_s < r.end_s <= t1
@@ -90,7 +90,7 @@ def test_a_forward_and_a_reverse_swipe_back_to_back_are_read_each_in_its_directi
 def test_multichannel_capture_reads_each_track_from_one_swipe(demo_texts):
     cap, _ = synth_capture(demo_texts, rate_hz=192_000.0, speed=SpeedProfile(90.0, "swipe", 0.5),
                            imp=Impairments(snr_db=20, jitter=0.05, reverse=True), seed=11)
-    reads = decode_reads(cap)
+    reads = decode_reads(cap, field_check=False)  # random content: no 7813 layout
     assert [(r.channel, r.frame.text, r.valid) for r in reads] == [
         (0, demo_texts[1], True), (1, demo_texts[2], True), (2, demo_texts[3], True)]
 

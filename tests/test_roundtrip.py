@@ -60,7 +60,7 @@ def _check(reads, text, reverse):
 def test_head_capture_round_trips_to_the_same_text_valid_and_in_the_right_direction(sc):
     track, text, rate, speed, imp, seed = sc
     cap, _ = synth_capture({track: text}, rate_hz=rate, speed=speed, imp=imp, seed=seed)
-    _check(decode_reads(cap), text, imp.reverse)
+    _check(decode_reads(cap, field_check=False), text, imp.reverse)  # random content: no 7813 layout
 
 
 @given(scenario())
@@ -68,7 +68,7 @@ def test_logic_level_capture_round_trips_to_the_same_text(sc):
     track, text, rate, speed, imp, seed = sc
     imp = Impairments(jitter=imp.jitter, reverse=imp.reverse, invert=imp.invert)
     cap, _ = synth_capture({track: text}, rate_hz=rate, speed=speed, imp=imp, seed=seed, output="flux")
-    _check(decode_reads(cap), text, imp.reverse)
+    _check(decode_reads(cap, field_check=False), text, imp.reverse)  # random content: no 7813 layout
 
 
 def test_three_track_capture_decodes_each_channel_as_its_track(demo_texts):
