@@ -85,3 +85,32 @@ def test_no_timecode_frame_in_a_negative_capture(name):
 def test_no_cassette_byte_in_a_negative_capture(name):
     r = decode_kcs(NEGATIVES[name](), RATE_HZ)
     assert r.data == b"" and not r.valid
+
+
+def card_swipe():
+    """A synthesized three-track card swipe (invented content), the card channel's own model."""
+    from readchan.synth import SpeedProfile, SynthSpec, synthesize
+    from readchan.synth.card import track_content
+
+    tracks = (track_content("%B9912345678901239^QUILL/ODESSA M^2912101000000000000?", track=1),
+              track_content(";9912345678901239=29121010000000000?", track=2))
+    return synthesize(SynthSpec(tracks=tracks, speed=SpeedProfile(30.0), rate_hz=RATE_HZ, swipes=3, seed=2)).samples
+
+
+@pytest.mark.parametrize("channel", [0, 1])
+def test_card_swipe_gives_no_tape_read(channel):
+    x = card_swipe()
+    assert decode_ltc(x, RATE_HZ, channel=channel).frames == ()
+    assert decode_kcs(x, RATE_HZ, channel=channel).data == b""
+
+
+def test_cassette_capture_gives_no_timecode_and_timecode_gives_no_bytes():
+    from readchan.tape.synth_kcs import KcsSpec, synthesize_kcs
+    from readchan.tape.synth_ltc import LtcSpec, synthesize_ltc
+
+    for baud in (300, 1200):
+        kcs = synthesize_kcs(KcsSpec(data=bytes(range(200)), baud=baud))
+        assert decode_ltc(kcs.samples, kcs.rate_hz).frames == ()
+    for rate in (25.0, 30.0):            # 30 fps is 2400 bit/s: its cells last one 2400 Hz half cycle
+        ltc = synthesize_ltc(LtcSpec(duration_s=2.0, rate_fps=rate, signal="line"))
+        assert decode_kcs(ltc.samples, ltc.rate_hz).data == b""

@@ -234,7 +234,8 @@ def read_from_bits(tb: TapeBits, *, channel: int = 0, nominal_speed: bool = Fals
                    cands, tuple(events), tb, tb.kind, bit_rate)
 
 
-def _channel(samples: np.ndarray, channel: int) -> np.ndarray:
+def channel_samples(samples: np.ndarray, channel: int) -> np.ndarray:
+    """One channel of ``samples`` as float64, or CaptureError / ParameterError for bad input."""
     x = np.asarray(samples, dtype=float)
     if x.ndim == 2:
         if not 0 <= channel < x.shape[1]:
@@ -279,7 +280,7 @@ def decode_ltc(samples: np.ndarray, rate_hz: float, *, channel: int = 0, kind: s
     ParameterError : bad rate, channel or kind.
     """
     rate = check_rate(rate_hz)
-    x = _channel(samples, channel)
+    x = channel_samples(samples, channel)
     if not 0 <= min_margin < 1:
         raise ParameterError(f"min_margin must be in [0, 1), was {min_margin!r}")
     tb = decode_biphase(x, rate, kind=kind)

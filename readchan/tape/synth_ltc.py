@@ -192,7 +192,8 @@ class LtcSynth:
     ----------
     samples : float64 (n,).
     rate_hz : sample rate in Hz.
-    frames : :class:`TruthFrame` per complete frame met, in capture order.
+    frames : :class:`TruthFrame` per complete frame met, in capture order (both its boundaries
+        at least half a cell inside the capture).
     transition_times_s : true transition times in the capture, seconds.
     edit_times_s : capture time at which the head met each edit (None if it did not).
     noise_rms : RMS of the added white noise, output units.
@@ -299,6 +300,10 @@ def synthesize_ltc(spec: LtcSpec) -> LtcSynth:
     for start_cell, word in frames:
         a, b = cell_time(np.array([start_cell, start_cell + WORD_BITS]))
         if not (np.isfinite(a) and np.isfinite(b)):
+            continue
+        # a boundary at the very edge of the capture cannot be seen: keep half a cell inside
+        edge = max(4.0 / spec.rate_hz, 0.5 / (cells_per_s * float(speed_at(np.array([min(a, b)]))[0])))
+        if min(a, b) < edge or max(a, b) > n / spec.rate_hz - edge:
             continue
         first, last = (a, b) if forward else (b, a)
         truth.append(TruthFrame(word.label.text(word.drop_frame), float(first),
