@@ -18,7 +18,7 @@ from readchan.capture import (Capture, NonPhysicalSampleWarning, check_rate_rang
 from readchan.condition import (MIN_NOTCH_HZ, ConditionSettings, Conditioned, check_condition_settings, check_frequency,
                                 condition, fit_hum, refine, signal_band_hz)
 from readchan.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, classify_kind, clipped_fraction,
-                             detect_head, detect_logic, pulse_width_s)
+                             detect_head, detect_logic, pulse_width_s, quantisation_step)
 from readchan.density import TrackEvidence, clocking_pw50_cell, decide_track, leading_zeros
 from readchan.errors import ParameterError
 from readchan.evidence import MAX_DAMAGED_CHARS, damage_evidence, damaged_characters
@@ -251,7 +251,8 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
     cond = condition(x, rate_hz, cs, channel=channel)
     band = signal_band_hz(cond.signal, rate_hz) if settings.auto_band and cs.lowpass_hz is None else None
     first = refine(cond, lowpass_hz=1.5 * band) if band is not None else cond
-    tr = detect_head(first.signal, rate_hz, threshold=settings.threshold)
+    q = quantisation_step(x)
+    tr = detect_head(first.signal, rate_hz, threshold=settings.threshold, quant_step=q)
     refined = False
     if settings.notch == "auto":
         quiet = quiet_mask(x.size, rate_hz, segment(tr))
@@ -287,7 +288,7 @@ def _detect_head_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings
             refined = True
     clipped = clipped_fraction(x) > CLIPPED_FRACTION
     if refined or clipped:
-        tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold,
+        tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold, quant_step=q,
                          timing="midpoint" if clipped else "peak")
     return cond, tr, hum
 

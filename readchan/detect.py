@@ -105,8 +105,25 @@ def noise_rms(x: np.ndarray, rate_hz: float) -> float:
     return float(np.percentile(r, 10))
 
 
+def quantisation_step(x: np.ndarray) -> float:
+    """The converter's step when the samples lie on a uniform grid (an 8-bit scope export, a
+    16-bit WAV), else 0: the smallest difference between distinct values, accepted when 99 % of
+    the differences between neighbouring distinct values are whole multiples of it (within 1 %)."""
+    sub = np.asarray(x[:: max(1, x.size // 200_000)], float)
+    u = np.unique(sub)
+    if u.size < 2 or u.size > max(16, sub.size // 4):
+        return 0.0
+    d = np.diff(u)
+    q = float(d.min())
+    if not q > 0:
+        return 0.0
+    k = d / q
+    return q if np.mean(np.abs(k - np.round(k)) < 0.01) >= 0.99 else 0.0
+
+
 def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
-                floor_sigma: float = 4.5, window: int = 15, timing: str = "peak") -> Transitions:
+                floor_sigma: float = 4.5, window: int = 15, timing: str = "peak",
+                quant_step: float = 0.0) -> Transitions:
     """Detect pulse peaks in a conditioned head signal ``x``.
 
     Parameters
@@ -118,6 +135,12 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     window : number of neighbouring candidates the local envelope is taken over.
     timing : ``"peak"`` (parabola through the three samples at the peak) or ``"midpoint"``
         (:func:`level_midpoint_times`, for clipped captures).
+    quant_step : the capture's quantisation step (capture units; :func:`quantisation_step`),
+        0 when unknown.  Noise finer than the step reaches the samples as sparse one-level
+        toggles, which leave most 1 ms blocks at zero and fool the block-RMS noise estimate, so
+        the noise is taken as at least step/√12 (the uniform-error model; Widrow & Kollár,
+        *Quantization Noise*, 2008) and the candidate floor as at least two steps: a one-level
+        excursion is the converter's rounding, never a pulse.
 
     Notes
     -----
@@ -136,12 +159,12 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     alternation rule is resolved one case at a time (the only loop, over those cases).
     """
     x = np.asarray(x, dtype=float)
-    sigma = noise_rms(x, rate_hz)
+    sigma = max(noise_rms(x, rate_hz), quant_step / np.sqrt(12.0))
     step = max(1, x.size // 500_000)
     big = float(np.percentile(np.abs(x[::step]), 99.9)) if x.size else 0.0
     if not big > 0:
         return _empty("head", rate_hz, sigma)
-    floor = min(max(floor_sigma * sigma, 0.02 * big), 0.3 * big)
+    floor = min(max(floor_sigma * sigma, 0.02 * big, 2.0 * quant_step), 0.3 * big)
     idx, sgn = _lobe_peaks(x, 0.5 * floor, floor)
     amp = np.abs(x[idx])
     if idx.size == 0:

@@ -66,3 +66,30 @@ def test_ringing_lobes_between_pulses_are_not_detected_however_many_there_are(n_
     tr = detect_head(x, RATE_HZ)
     assert np.array_equal(tr.index, centres)
     assert np.all(tr.flags == 0)
+
+
+def test_quantisation_step_is_found_on_a_scope_grid_and_not_on_float_samples():
+    from readchan.detect import quantisation_step
+    from readchan.synth.chain import FrontEnd, quantise
+
+    rng = np.random.default_rng(3)
+    x = rng.normal(0, 0.2, 50_000)
+    fe = FrontEnd(scope_volts_per_div=0.1, scope_offset_v=0.013)
+    assert quantisation_step(quantise(x, fe)) == pytest.approx(0.1 * 8 / 256)   # V/div × 8 / 256
+    assert quantisation_step(x) == 0.0
+
+
+def test_noise_finer_than_a_quantisation_step_gives_no_transitions():
+    # Gaussian noise of 0.4 step RMS, band-limited to 1.5 kHz as a preamp leaves it, quantised:
+    # mostly zeros with sparse clumps of one-level toggles, which leave most 1 ms blocks empty.
+    # The noise is then at least step/√12 (Widrow & Kollár 2008) and one level is never a pulse.
+    from readchan.synth.chain import FrontEnd, quantise
+
+    fe = FrontEnd(scope_volts_per_div=1.6)       # step 0.05: the pulse peak (1) spans 20 levels
+    x, centres = _pulses_with_ringing(0)
+    n = sps.sosfilt(sps.butter(2, 1500.0, fs=RATE_HZ, output="sos"), np.random.default_rng(4).normal(0, 1, 20_000))
+    quiet = quantise(0.4 * fe.step * n / np.std(n), fe)
+    y = quantise(x, fe)
+    capture = np.concatenate((quiet, y, quiet))
+    tr = detect_head(capture, RATE_HZ, quant_step=fe.step)
+    assert np.array_equal(tr.index, centres + quiet.size)
