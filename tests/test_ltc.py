@@ -222,3 +222,34 @@ def test_stereo_capture_reads_the_chosen_channel():
 def test_bad_input_is_a_clear_error(samples, rate, error):
     with pytest.raises(error):
         decode_ltc(samples, rate)
+
+
+def _ideal_read(words, bit_rate=2000.0):
+    pos, _ = biphase_positions(np.concatenate(words))
+    return read_from_bits(bits_from_transitions(0.01 + pos / bit_rate))
+
+
+def test_frame_failing_its_parity_is_a_damaged_event_where_it_lies():
+    words = [encode_word(FrameWord(Label(2, 0, 0, k)), 25.0) for k in range(12)]
+    words[5][20] ^= 1                                  # a user bit: the zero count turns odd
+    r = _ideal_read(words)
+    assert "02:00:00:05" not in [f.timecode for f in r.frames] and len(r.frames) == 11
+    (e,) = r.events
+    assert (e.kind, e.frames, e.from_timecode, e.to_timecode) == ("damaged", 1, "02:00:00:04", "02:00:00:06")
+    assert e.position_s == pytest.approx(0.01 + 5 * 80 / 2000.0, abs=1e-9)
+
+
+def test_skipped_drop_frame_label_is_an_invalid_label_event():
+    labels = [Label(0, 0, 59, 28), Label(0, 0, 59, 29), Label(0, 1, 0, 0), Label(0, 1, 0, 2), Label(0, 1, 0, 3)]
+    words = [encode_word(FrameWord(lab, drop_frame=True), 29.97) for lab in labels]
+    r = _ideal_read(words, bit_rate=2397.6)
+    assert "00:01:00;00" not in [f.timecode for f in r.frames]
+    assert [e.kind for e in r.events if e.kind == "invalid_label"] == ["invalid_label"]
+
+
+def test_play_reversing_without_a_stop_is_a_direction_change():
+    fwd = [encode_word(FrameWord(Label(3, 0, 0, k)), 25.0) for k in range(6)]
+    back = [w[::-1] for w in fwd[::-1]]               # the same frames met backwards
+    r = _ideal_read(fwd + back)
+    assert [f.direction for f in r.frames] == ["forward"] * 6 + ["reverse"] * 6
+    assert [e.kind for e in r.events] == ["direction_change"]
