@@ -502,5 +502,6 @@ def decode_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),
                    channels: list[int] | None = None) -> list[ChannelResult]:
     """Decode the chosen ``channels`` (default: all) of a capture."""
     chans = range(cap.n_channels) if channels is None else channels
-    return [decode_channel(cap.channel(c), cap.rate_hz, settings, channel=c,
+    # each channel copied out contiguous once: a column of a wide capture is strided in memory
+    return [decode_channel(np.ascontiguousarray(cap.channel(c)), cap.rate_hz, settings, channel=c,
                            n_channels=cap.n_channels, source=cap.source) for c in chans]

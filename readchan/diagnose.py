@@ -519,7 +519,7 @@ def inspect_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),
     hp = settings.condition.highpass_hz
     out = []
     for c in chans:
-        x = cap.channel(c)
+        x = np.ascontiguousarray(cap.channel(c))      # a column of a wide capture is strided
         res = decode_channel(x, cap.rate_hz, settings, channel=c, n_channels=cap.n_channels, source=cap.source)
         if res.outliers.size:           # measure what was decoded: the channel with its faults repaired
             x = repair_outliers(x)[0]
