@@ -1061,7 +1061,8 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
         if kind in _AUDIO_KINDS:
             fmt, subtype = _AUDIO_KINDS[kind]
             try:
-                sf.write(str(tmp), data, int(round(rate)), subtype=subtype, format=fmt)
+                with open(tmp, "wb") as fh:       # by the file, not its name: names need not be UTF-8
+                    sf.write(fh, data, int(round(rate)), subtype=subtype, format=fmt)
             except (sf.SoundFileError, RuntimeError, ValueError, TypeError) as exc:
                 raise _err(source, f"cannot write {kind} ({_soundfile_reason(exc)})") from None
         else:

@@ -282,7 +282,7 @@ def synth(
 ) -> None:
     """Synthesize a capture of known content and known impairments (one channel per track)."""
     from readchan.atomic import check_output_path
-    from readchan.capture import write_capture
+    from readchan.capture import display_path, write_capture
     from readchan.formats import parse_format
     from readchan.synth import SAMPLE_LIMIT, FrontEnd, Impairments, SpeedProfile, SynthSpec, synthesize
     from readchan.synth.card import parse_bits, track_content
@@ -322,7 +322,7 @@ def synth(
     res = synthesize(spec, max_samples=None if force else SAMPLE_LIMIT)
     names = [t.label.replace(" ", "") or f"ch{i}" for i, t in enumerate(tracks)]
     path = write_capture(output, res.samples, res.rate_hz, kind=kind.value, force=force, channel_names=names)
-    err.print(f"wrote {path}: {len(tracks)} channel(s), {res.duration_s:.3f} s at {res.rate_hz:g} Hz, "
+    err.print(f"wrote {display_path(path)}: {len(tracks)} channel(s), {res.duration_s:.3f} s at {res.rate_hz:g} Hz, "
               f"PW50 {res.pw50_m * 1e6:.1f} µm, {swipes} swipe(s)")
 
 

@@ -458,3 +458,12 @@ def test_sweep_plot_with_a_300_character_name_is_refused_before_the_trials(tmp_p
                              "--plot", tmp_path / f"{LONG}.png")
     assert code == 2 and out == ""
     assert "too long" in one_line_error(err)
+
+
+@pytest.mark.parametrize("file_type", ["wav16", "flac"])
+def test_synth_writes_audio_to_a_name_that_is_not_utf8(tmp_path, monkeypatch, capsys, file_type):
+    name = _bytes_name(tmp_path, b"out\xe9." + (b"wav" if file_type == "wav16" else b"flac"))
+    code, _, err = run_cli(monkeypatch, capsys, "synth", name, "--track1", TEXT, "--file-type", file_type, "--force")
+    assert code == 0, err
+    assert "out\\xe9" in err
+    assert [r.frame.text for r in reads_of(decode_capture(load_capture(name))) if r.valid] == [TEXT]
