@@ -437,7 +437,7 @@ def noise_source_text(fe: FrontEnd) -> str:
             n = fe.noise_pulses_excluded
             left.append(f"{n} isolated pulse{'s' if n != 1 else ''}")
         if fe.noise_slow_excluded_s > 0:
-            left.append(f"{fe.noise_slow_excluded_s * 1e3:.0f} ms of slow baseline")
+            left.append(f"{fe.noise_slow_excluded_s * 1e3:.0f} ms of slow baseline or transients")
         if left:
             text += "; left out: " + ", ".join(left)
     if fe.noise_floored:
@@ -642,7 +642,7 @@ class NoiseEstimate:
     used_s : time the RMS was taken over, seconds.
     pulses_excluded : isolated pulses (card edges, stray detections) left out.
     slow_excluded_s : time left out for slow excursions (AC-coupling recovery, residual
-        wander), seconds.
+        wander) and unsteady blocks (transients), seconds.
     mask : the samples the RMS was taken over.
     """
 
@@ -674,11 +674,16 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
        wide has a MAD of 0 or one step).
     2. Samples within ``PULSE_REACH_CELLS`` typical intervals (``cell_s``) of a quiet sample
        beyond ``PULSE_SIGMA``·σ₀ are left out (card-edge pulses, stray detections).
-    3. The rest is smoothed by a moving average over max(1 ms, 4 intervals); where the smoothed
-       signal leaves ±``SLOW_SIGMA`` robust σ of itself (an AC-coupling recovery after a
+    3. The rest is smoothed by a moving average over max(1 ms, 4 intervals) of the samples
+       kept; where the smoothed signal leaves ±``SLOW_SIGMA`` robust σ of itself (the σ widened
+       by 1/√(fraction kept) next to a stretch left out) (an AC-coupling recovery after a
        pulse, wander the baseline high-pass did not take), samples are left out too.
-    4. The noise is the plain RMS of what is left, so every kind of noise counts at its full
-       power (quantisation noise included: it is not Gaussian, and a MAD would misjudge it).
+    4. What is left is cut into blocks of max(2 ms, 8 intervals), each with a quadratic taken
+       out (slow content within a block), and blocks whose RMS exceeds 1.5× the median
+       block's are left out (:func:`_detrended_rms`: transients, filter end effects).
+    5. The noise is the plain RMS of the residuals (degrees of freedom counted), so every kind
+       of noise counts at its full power (quantisation noise included: it is not Gaussian,
+       and a MAD would misjudge it).
 
     Returns None when fewer than 64 samples are left.
     """
@@ -715,15 +720,63 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
         if step:
             s1 = max(s1, step / math.sqrt(12.0 * m))
         if s1 > 0:
-            slow = full & (np.abs(smooth - np.median(sm)) > SLOW_SIGMA * s1)
+            # next to a left-out stretch the window is partly empty: test the mean of what is
+            # kept, against a scale widened by 1/√(fraction kept)
+            part = keep & (cnt >= 0.5)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                dev = np.abs(smooth / np.maximum(cnt, 1e-9) - np.median(sm)) * np.sqrt(np.maximum(cnt, 1e-9))
+            slow = part & (dev > SLOW_SIGMA * s1)
             if slow.any():
                 slow = binary_dilation(slow, np.ones(2 * m + 1, bool)) & keep
     use = keep & ~slow
     if use.sum() < 64:
         return None
-    u = w[use]
-    return NoiseEstimate(float(np.sqrt(np.mean((u - u.mean()) ** 2))), float(use.sum()) / rate_hz, n_pulses,
-                         float(slow.sum()) / rate_hz, use)
+    rms, use, unsteady = _detrended_rms(w, use, max(int(0.002 * rate_hz), int(8 * cell_s * rate_hz), 32))
+    return NoiseEstimate(rms, float(use.sum()) / rate_hz, n_pulses, float((slow.sum() + unsteady) / rate_hz), use)
+
+
+UNSTEADY_RATIO = 1.5
+"""A block whose RMS exceeds this × the median block RMS is not steady noise."""
+
+
+DETREND_ORDER = 2
+"""Degree of the polynomial taken out of each noise block (slow content within a block)."""
+
+
+def _detrended_rms(w: np.ndarray, use: np.ndarray, block: int) -> tuple[float, np.ndarray, int]:
+    """Noise RMS over blocks of ``block`` consecutive used samples, each with its own
+    least-squares polynomial of degree ``DETREND_ORDER`` taken out (what is slow within a few
+    bit cells — an AC-coupling recovery, a hum residue — is not noise), the residual sum of
+    squares divided by N − (degree + 1) per block (least squares; common practice).  Blocks
+    whose residual RMS exceeds ``UNSTEADY_RATIO`` × the median block's are left out (a
+    transient, a filter's end effect): with blocks of at least 8 bit cells, steady noise's
+    block RMS varies by about a tenth.  Returns (RMS, mask of the samples used, samples left
+    out)."""
+    idx = np.flatnonzero(use)
+    runs = np.split(idx, np.flatnonzero(np.diff(idx) > 1) + 1)
+    blocks = [r[a:a + block] for r in runs for a in range(0, r.size, block)]
+    p = DETREND_ORDER + 1
+    blocks = [b for b in blocks if b.size >= max(block // 2, 4 * p)]
+    if not blocks:
+        u = w[idx]
+        return float(np.sqrt(np.mean((u - u.mean()) ** 2))), use, 0
+    rss = np.empty(len(blocks))
+    dof = np.empty(len(blocks))
+    for i, b in enumerate(blocks):
+        x = np.linspace(-1.0, 1.0, b.size)
+        A = np.vander(x, p)
+        y = w[b]
+        coef, *_ = np.linalg.lstsq(A, y, rcond=None)
+        r = y - A @ coef
+        rss[i], dof[i] = float(r @ r), b.size - p
+    ms = rss / dof
+    good = np.ones(len(blocks), bool)
+    if len(blocks) >= 3:
+        good = ms <= UNSTEADY_RATIO ** 2 * np.median(ms)
+    out = np.zeros_like(use)
+    for i in np.flatnonzero(good):
+        out[blocks[i]] = True
+    return float(np.sqrt(rss[good].sum() / dof[good].sum())), out, int(use.sum() - out.sum())
 
 
 def _hp_gain(f_hz: np.ndarray, corner_hz: float | None) -> np.ndarray:
