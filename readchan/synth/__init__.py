@@ -63,7 +63,7 @@ class TrackContent:
 
     def __post_init__(self) -> None:
         if not math.isfinite(self.density_bpi) or not 1.0 <= self.density_bpi <= 10_000:
-            raise ParameterError(f"density must be between 1 and 10000 bpi, was {self.density_bpi!r}")
+            raise ParameterError(f"density_bpi must be between 1 and 10000 bpi, was {self.density_bpi!r}")
         if np.asarray(self.bits).size == 0:
             raise ParameterError("a track needs at least one bit")
 
