@@ -155,3 +155,13 @@ def test_card_edge_pulse_is_half_a_transition():
     i0 = int(round(t0 * res.rate_hz))
     edge = np.abs(y[i0 - 50:i0 + 50]).max()
     assert edge == pytest.approx(0.5 * spec.amplitude, rel=0.05)
+
+
+def test_eight_bit_scope_csv_file_with_a_pre_trigger_stretch(tmp_path):
+    # the same through a CSV file (volts as the scope exported them, a time column)
+    from readchan.capture import load_capture, write_capture
+    cap, truth, _ = front_end_capture(2, T2, snr_db=40.0, scope_v_div=0.2, lead_s=0.03, seed=13)
+    path = write_capture(tmp_path / "scope.csv", cap.samples, cap.rate_hz, kind="csv")
+    fe, r = _read(load_capture(path))
+    assert fe.quant_step == pytest.approx(0.2 * 8 / 256, rel=1e-3)
+    assert r.noise.snr_db == pytest.approx(truth, abs=1.0)
