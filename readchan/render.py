@@ -146,7 +146,10 @@ def decode_table(reads: list[Read], *, unmask: bool = False, title: str | None =
             parity = Text(f"{how} {','.join(map(str, f.corrected))}", style="yellow")
         lrc = _verdict(f.lrc_ok) if f.complete else Text(missing_end(f), style="bold red")
         speed = "" if r.mean_speed_cm_s is None else f"{r.mean_speed_cm_s:.1f}"
-        t.add_row(str(n), str(r.channel), str(r.track.number) if r.track else "?", f.format, f.direction,
+        track = "?" if r.track is None else str(r.track.number)
+        if r.track is not None and r.track_evidence is not None and r.track_evidence.ambiguous:
+            track += "?"                 # assumed, not decided: see the track line
+        t.add_row(str(n), str(r.channel), track, f.format, f.direction,
                   str(len(f.text)), parity, lrc, verdict_text(r), str(len(r.bits)), speed,
                   f"{r.start_s:.3f}–{r.end_s:.3f}")
     return t

@@ -92,6 +92,17 @@ def test_undecided_evidence_is_reported_as_ambiguous():
     assert r.track_evidence.text().startswith("ambiguous")
 
 
+def test_decode_marks_an_ambiguous_track_in_its_table():
+    from rich.console import Console
+
+    from readchan.render import decode_table
+    pulse = LorentzianPulse(0.14 * 0.0254 / 210)
+    cap, _ = _synth([track_content(SHORT, track=3, leading_zeros=10)], pulse=pulse)
+    console = Console(width=200, record=True)
+    console.print(decode_table(_reads(cap)))
+    assert "│ 2?    │" in console.export_text()
+
+
 def test_conflicting_evidence_is_ambiguous():
     ev = decide_track(ISO_BCD.name, 20, 0, 1, pw50_cell=0.3, zeros=22)
     assert ev.ambiguous and ev.pw50_vote == 210.0 and ev.zeros_vote == 75.0
