@@ -314,12 +314,18 @@ def auto_highpass_hz(tr: Transitions, *, factor: float = 0.15) -> float | None:
 
 
 def clipped_fraction(x: np.ndarray) -> float:
-    """Fraction of samples sitting at the signal's extreme values (within 0.1 % of the largest
-    |x| from the median): a clipped front end flattens the pulse crests there."""
+    """Fraction of samples sitting at either extreme of the signal (within 0.1 % of its span of
+    the largest or of the smallest value), the larger of the two: a clipped front end flattens
+    the pulse crests there.  Each rail on its own, since a baseline offset ahead of the clipper
+    (wander, DC) brings one polarity to its rail long before the other."""
     x = x[:: max(1, x.size // 500_000)]
-    y = np.abs(x - np.median(x))
-    top = y.max() if y.size else 0.0
-    return float(np.mean(y >= 0.999 * top)) if top > 0 else 0.0
+    if x.size == 0:
+        return 0.0
+    lo, hi = float(x.min()), float(x.max())
+    span = hi - lo
+    if not span > 0:
+        return 0.0
+    return float(max(np.mean(x >= hi - 1e-3 * span), np.mean(x <= lo + 1e-3 * span)))
 
 
 def level_midpoint_times(x: np.ndarray, idx: np.ndarray, *, level: float = 0.75) -> np.ndarray:
@@ -331,12 +337,16 @@ def level_midpoint_times(x: np.ndarray, idx: np.ndarray, *, level: float = 0.75)
     """
     out = np.empty(idx.size)
     n = x.size
-    bounds = np.concatenate(([0], (idx[1:] + idx[:-1]) // 2, [n - 1]))
+    # search as far as the neighbouring pulses: they have the opposite sign, so the signal
+    # crosses the level on the way to each.  (Half-way to them is not enough: a flat crest's
+    # extreme sample, which ``idx`` holds, may sit at either end of the crest, and half-way to
+    # the neighbour then falls inside the crest.)
+    bounds = np.concatenate(([0], idx.astype(np.int64), [n - 1]))
     for k in range(idx.size):
         i = int(idx[k])
         s = 1.0 if x[i] >= 0 else -1.0
         thr = level * s * x[i]
-        lo, hi = int(bounds[k]), int(bounds[k + 1])
+        lo, hi = int(bounds[k]), int(bounds[k + 2])
         left = s * x[lo:i + 1] < thr
         right = s * x[i:hi + 1] < thr
         if not left.any() or not right.any():

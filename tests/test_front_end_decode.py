@@ -93,3 +93,25 @@ def test_noise_finer_than_a_quantisation_step_gives_no_transitions():
     capture = np.concatenate((quiet, y, quiet))
     tr = detect_head(capture, RATE_HZ, quant_step=fe.step)
     assert np.array_equal(tr.index, centres + quiet.size)
+
+
+def test_clipping_on_one_rail_only_is_recognised():
+    # A baseline offset ahead of the clipper brings one polarity to its rail alone.
+    from readchan.detect import clipped_fraction
+
+    x, _ = _pulses_with_ringing(0)
+    assert clipped_fraction(x) < 0.005
+    assert clipped_fraction(np.maximum(x - 0.5, -0.7)) > 0.005
+
+
+def test_a_flat_crest_is_timed_at_its_middle_even_when_its_extreme_sample_is_at_one_end():
+    from readchan.detect import level_midpoint_times
+
+    t = np.arange(200, dtype=float)
+    x = np.exp(-0.5 * ((t - 100) / 6.0) ** 2) - np.exp(-0.5 * ((t - 80) / 3.0) ** 2) \
+        - np.exp(-0.5 * ((t - 120) / 3.0) ** 2)
+    crest = x >= 0.3                              # samples 92..108, clipped flat
+    x = np.minimum(x, 0.3)
+    x[crest] += np.linspace(0, 1e-4, crest.sum())  # the crest's largest sample is its last one
+    idx = np.array([80, int(np.flatnonzero(crest)[-1]), 120])
+    assert level_midpoint_times(x, idx)[1] == pytest.approx(100.0, abs=0.2)

@@ -69,6 +69,43 @@ def test_hard_swipes_decode_to_the_exact_text_valid_and_in_the_right_direction(s
     assert r.frame.direction == ("reverse" if imp.reverse else "forward")
 
 
+def _clip_and_wander(speed_cm_s: float, seed: int):
+    """``%5?`` on track 1, clipped at 0.7 of the peak after a 2 Hz baseline wander of 0.5 of it
+    (clipping acts on the sum, as a front end's rail does), at 12 samples per cell or more."""
+    rate = next(r for r in (48e3, 96e3, 192e3) if r >= 12 * speed_cm_s / 2.54 * 210)
+    return synth_capture({1: "%5?"}, rate_hz=rate, speed=SpeedProfile(speed_cm_s),
+                         imp=Impairments(clip=0.7, wander_level=0.5), seed=seed)
+
+
+@pytest.mark.parametrize("seed", [2, 3])
+def test_clipping_after_wander_leaves_half_the_pulses_a_fifth_of_their_height(seed):
+    # The figure behind the case below: with the wander at its extreme (−0.5 of the peak) all
+    # through the short swipe, the pulses towards that rail keep 0.7 − 0.5 = 0.2 of their height,
+    # flat-topped, and the others are whole.  (The sample nearest each transition, measured from
+    # the wander, over the clean pulse there.)
+    cap, res = _clip_and_wander(30.0, seed)
+    clean, _ = synth_capture({1: "%5?"}, rate_hz=cap.rate_hz, speed=SpeedProfile(30.0), seed=seed)
+    wander, _ = synth_capture({1: "%5?"}, rate_hz=cap.rate_hz, speed=SpeedProfile(30.0),
+                              imp=Impairments(wander_level=0.5), seed=seed)
+    k = np.round(res.transition_times_s[0] * cap.rate_hz).astype(int)
+    base = wander.channel(0)[k] - clean.channel(0)[k]
+    left = np.abs(cap.channel(0)[k] - base) / np.abs(clean.channel(0)[k])
+    assert np.mean(left < 0.3) == pytest.approx(0.5, abs=0.05)
+    assert left.min() == pytest.approx(0.2, abs=0.03)
+
+
+@pytest.mark.parametrize("speed_cm_s", [30.0, 80.0, 150.0])
+@pytest.mark.parametrize("seed", range(6))
+def test_a_short_track_1_read_clipped_after_baseline_wander_decodes(speed_cm_s, seed):
+    # Found by a full run: 2 of 6 seeds gave "no framed data" (the wander's phase puts the whole
+    # short swipe at its extreme).  The clipped rail was missed by a symmetric clipping test, so
+    # the flat crests were timed by their edges; and the crest's timing search stopped half-way
+    # to the neighbour, inside the crest.
+    cap, _ = _clip_and_wander(speed_cm_s, seed)
+    reads = decode_reads(cap)
+    assert [(r.frame.text, r.valid) for r in reads] == [("%5?", True)]
+
+
 def test_three_swipes_in_one_capture_are_three_reads_in_time_order(demo_texts):
     cap, res = synth_capture({1: demo_texts[1]}, imp=Impairments(snr_db=25, jitter=0.03), swipes=3,
                              gap_s=0.15, speed=SpeedProfile(35.0, "swipe", 0.3), seed=9)
