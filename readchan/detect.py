@@ -47,8 +47,8 @@ class Transitions:
     times_s : transition times in seconds from the capture's first sample (sub-sample).
     index : nearest sample index of each transition.
     amplitude : signed peak value at each transition (capture units); logic: the level after.
-    envelope : the local pulse amplitude: the 75th percentile of |amplitude| over the
-        neighbouring transitions (see :func:`detect_head`).
+    envelope : the local pulse-amplitude estimate each transition was accepted against (see
+        :func:`detect_head`).
     flags : per-transition bit mask of ``FLAG_*``.
     rate_hz : sample rate in Hz.
     kind : ``"head"`` or ``"logic"``.
@@ -155,8 +155,7 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     band-limited captures: a causal preamp low-pass (and the decoder's own low-pass) leaves small
     ringing lobes after every pulse, up to four between two pulses, which as candidates would
     outnumber the pulses and pull a plain percentile down to their own level, and then pass
-    the threshold as pulses themselves.  The envelope reported with the transitions is the plain
-    75th percentile again, over the pulses alone once the lobes are gone.  A candidate is a pulse when it exceeds
+    the threshold as pulses themselves.  A candidate is a pulse when it exceeds
     ``threshold × envelope``; where two pulses of one polarity then follow each other, the
     alternation rule is resolved one case at a time (the only loop, over those cases).
     """
@@ -175,10 +174,6 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
                             size=min(window, idx.size), mode="nearest")
     strong = amp >= threshold * env
     idx, env, flags = _alternate(x, idx, sgn, amp, env, strong, threshold)
-    if idx.size:
-        # reported: the local pulse amplitude over the pulses alone (the same percentile, now
-        # with the lobes and noise peaks gone), which later stages compare each pulse against
-        env = percentile_filter(np.abs(x[idx]), 75, size=min(window, idx.size), mode="nearest")
     times = (level_midpoint_times(x, idx) if timing == "midpoint" else _parabolic_times(x, idx)) / rate_hz
     return Transitions(times, idx, x[idx], env, flags, float(rate_hz), "head", sigma)
 
