@@ -209,7 +209,7 @@ class CardFields:
             "service_code": values["service_code"],
             "discretionary": values["discretionary"],
             "luhn_ok": self.luhn_ok,
-            "problems": [p if unmask or trusted else _hide_digits(p) for p in self.problems],
+            "problems": [p if unmask or trusted else _hide_quoted(p) for p in self.problems],
         }
 
 
@@ -429,6 +429,13 @@ def mask_text(text: str, format_name: str, unmask: bool = False, *, trusted: boo
 
 def _hide_digits(text: str) -> str:
     return "".join(MASK_CHAR if "0" <= ch <= "9" else ch for ch in text)
+
+
+def _hide_quoted(problem: str) -> str:
+    """A problem message with the digits it quotes from the text hidden (its own numbers,
+    such as "3 digits", stay)."""
+    problem = re.sub(r"'[^']*'", lambda m: _hide_digits(m.group()), problem)
+    return re.sub(r"month \d+", lambda m: _hide_digits(m.group()), problem)
 
 
 def _is_digits(text: str, allow_empty: bool = False) -> bool:
