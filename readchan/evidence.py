@@ -49,9 +49,9 @@ EVIDENCE = ("guessed pulse", "parse break", "odd interval", "phase step", "perio
 MAX_DAMAGED_CHARS = 1
 """Most characters a valid read may hold evidence of damage in."""
 
-ODD_INTERVAL = 0.15
+ODD_INTERVAL = 0.12
 """Least distance (cells) from both a half and a whole cell of an interval that is neither
-(so 0.65–0.85 cells, or outside 0.35–1.15)."""
+(so 0.62–0.88 cells, or outside 0.38–1.12)."""
 
 OUTLIER = 8.0
 """A timing statistic counts as evidence above this many robust standard deviations of its
@@ -74,10 +74,10 @@ on a wandering baseline need such rescues on good reads."""
 WINDOW = 8
 """Cell boundaries fitted on each side of a bit for the phase and period steps."""
 
-PHASE_STEP = 0.15
+PHASE_STEP = 0.1
 """Least phase step (cells) that counts as a jump of the clock."""
 
-PERIOD_STEP = 0.04
+PERIOD_STEP = 0.03
 """Least relative period change between the two sides that counts as a jump in speed."""
 
 

@@ -33,7 +33,7 @@ Kinds of damage:
 * ``dropout``: the signal attenuated to 0–5 % over 1–20 cells in the data.
 * ``extra pulses k``, ``SNR x dB``, ``jitter 0.2``: stray head pulses, heavy noise, jitter.
 
-Usage: PYTHONPATH=. python scripts/bench_false_accept.py [--trials N] [--workers W] [--seed S] [--json]
+Usage: python scripts/bench_false_accept.py [--trials N] [--workers W] [--seed S] [--json]
 """
 
 from __future__ import annotations
