@@ -185,6 +185,8 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
         "valid": bool(rd.valid),
         "checks_ok": bool(fr.valid),
         "rejected": rd.rejected,
+        "damaged_chars": [{"char": c, "evidence": list(kinds)} for c, kinds in rd.damaged_chars],
+        "field_errors": list(rd.field_errors),
         "start_s": _f(rd.start_s),
         "end_s": _f(rd.end_s),
         "bits": int(len(rd.bits)),
@@ -374,6 +376,13 @@ def print_inspect(console: Console, source: str, reports: list[ChannelReport], *
             console.print(head)
             console.print("  " + mask_text(rd.frame.text, rd.frame.format, unmask, trusted=rd.valid), soft_wrap=True,
                           highlight=False, markup=False)
+            if rd.rejected == "suspect":
+                where = "; ".join(f"char {c}: {', '.join(k)}" for c, k in rd.damaged_chars)
+                console.print(Text(f"  checks pass, but damage in more than one character: {where}", style="yellow"),
+                              soft_wrap=True)
+            elif rd.rejected == "fields":
+                console.print(Text("  checks pass, but the ISO/IEC 7813 layout is broken: "
+                                   + "; ".join(rd.field_errors), style="yellow"), soft_wrap=True)
             t = Table(show_header=False, box=None, pad_edge=False, padding=(0, 2, 0, 2))
             t.add_column(style="bold")
             t.add_column()

@@ -182,3 +182,26 @@ def test_a_seeded_subset_of_the_damage_benchmark_has_no_false_accept():
     result = bench.run(12, seed=3, workers=1, kinds=kinds)
     assert result["false_accept_cases"] == []
     assert sum(v[0] for v in result["tally"].values()) > 0
+
+
+def test_a_suspect_read_is_reported_with_its_checks_and_damaged_characters(monkeypatch, capsys, tmp_path):
+    import json
+
+    import soundfile as sf
+
+    from conftest import run_cli
+
+    text = "%B9916945167976810^ULM/TIRA^280495302172157229608228?"
+    x = _swipe(text, SpeedProfile(57.5, "swipe", 0.08), Impairments(jitter=0.027, snr_db=35.0, invert=True),
+               50699).samples[:, 0].copy()
+    x[8284:8284 + 1433] = x[8284:8284 + 1433][::-1].copy()
+    path = tmp_path / "reversed.wav"
+    sf.write(path, x, 96_000, subtype="PCM_24")
+    code, out, _ = run_cli(monkeypatch, capsys, "decode", "--json", path)
+    (r,) = json.loads(out)["reads"]
+    assert code == 1
+    assert r["checks_ok"] and not r["valid"] and r["rejected"] == "suspect"
+    assert r["parity_failed"] == [] and r["lrc_ok"]
+    assert len(r["damaged_chars"]) >= 2 and all(d["evidence"] for d in r["damaged_chars"])
+    code, out, _ = run_cli(monkeypatch, capsys, "decode", path)
+    assert "suspect" in out and "damage in more than one character" in out
