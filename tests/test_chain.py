@@ -175,6 +175,9 @@ def test_without_a_preamp_the_chain_renders_at_the_output_rate_and_keeps_the_hea
 @pytest.mark.parametrize("fe,name", [
     (dict(ac_coupling_hz=24_000.0), "ac_coupling_hz"),
     (dict(ac_coupling_hz=0.0), "ac_coupling_hz"),
+    (dict(ac_coupling_hz=5e-324), "ac_coupling_hz"),
+    (dict(preamp_lowpass_hz=1e-308), "preamp_lowpass_hz"),
+    (dict(scope_volts_per_div=5e-324), "scope_volts_per_div"),
     (dict(preamp_lowpass_hz=float("nan")), "preamp_lowpass_hz"),
     (dict(preamp_lowpass_hz=200_000.0), "preamp_lowpass_hz"),
     (dict(preamp_order=5), "preamp_order"),
@@ -206,10 +209,12 @@ def test_synth_command_writes_a_scope_csv_on_the_8_bit_levels_that_decodes(monke
     assert code == 0 and "valid" in stdout
 
 
-def test_synth_command_refuses_an_ac_coupling_corner_above_nyquist_in_one_line(monkeypatch, capsys, tmp_path):
+@pytest.mark.parametrize("corner_hz", ["30000", "5e-324"])
+def test_synth_command_refuses_an_ac_coupling_corner_off_its_range_in_one_line(monkeypatch, capsys, tmp_path,
+                                                                                 corner_hz):
     from conftest import run_cli
 
     code, _, err = run_cli(monkeypatch, capsys, "synth", tmp_path / "x.wav", "--track2", ";1?",
-                           "--ac-coupling-hz", "30000")
+                           "--ac-coupling-hz", corner_hz)
     assert code == 2 and "ac_coupling_hz" in err and err.count("\n") == 1
     assert not (tmp_path / "x.wav").exists()

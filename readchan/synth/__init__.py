@@ -125,8 +125,8 @@ class Impairments:
             object.__setattr__(self, name, float(value) + 0.0)     # -0.0 becomes 0.0
         if self.snr_db is not None and (not math.isfinite(self.snr_db) or not -20 <= self.snr_db <= 200):
             raise ParameterError(f"snr_db must be between -20 and 200 dB, was {self.snr_db!r}")
-        if self.highpass_hz is not None and (not math.isfinite(self.highpass_hz) or self.highpass_hz <= 0):
-            raise ParameterError(f"highpass_hz must be > 0, was {self.highpass_hz!r}")
+        if self.highpass_hz is not None and not (math.isfinite(self.highpass_hz) and self.highpass_hz >= 0.01):
+            raise ParameterError(f"highpass_hz must be at least 0.01 Hz, was {self.highpass_hz!r}")
         if self.clip is not None and (not math.isfinite(self.clip) or not 0.01 <= self.clip <= 10):
             raise ParameterError(f"clip must be a fraction between 0.01 and 10, was {self.clip!r}")
 

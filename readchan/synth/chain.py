@@ -41,6 +41,12 @@ from readchan.errors import ParameterError
 FAMILIES = ("butterworth", "bessel")
 
 
+LEAST = {"ac_coupling_hz": 0.01, "preamp_lowpass_hz": 1.0, "scope_volts_per_div": 1e-9}
+"""Smallest accepted value of each front-end setting: an AC-coupling corner below 0.01 Hz is DC
+coupling over any capture the synthesizer can write, and smaller values only underflow the
+filter design (our choice; the corners' upper bounds come from the output rate)."""
+
+
 @dataclass(frozen=True)
 class FrontEnd:
     """A reader's analog front end and converter; every stage off by default.
@@ -72,10 +78,10 @@ class FrontEnd:
     oversample: int = 8
 
     def __post_init__(self) -> None:
-        for name in ("ac_coupling_hz", "preamp_lowpass_hz", "scope_volts_per_div"):
+        for name, least in LEAST.items():
             v = getattr(self, name)
-            if v is not None and not (math.isfinite(v) and v > 0):
-                raise ParameterError(f"{name} must be > 0, was {v!r}")
+            if v is not None and not (math.isfinite(v) and v >= least):
+                raise ParameterError(f"{name} must be at least {least:g}, was {v!r}")
         if self.preamp_order not in (1, 2, 3, 4):
             raise ParameterError(f"preamp_order must be 1, 2, 3 or 4, was {self.preamp_order!r}")
         if self.preamp_family not in FAMILIES:
