@@ -240,7 +240,7 @@ class Capture:
     channel_names: tuple[str, ...] = field(default=())
 
     def __post_init__(self) -> None:
-        source = str(self.source)
+        source = display_path(self.source)      # printable in tables and valid UTF-8 in JSON
         try:
             samples = np.ascontiguousarray(self.samples, dtype=np.float64)
         except (TypeError, ValueError):

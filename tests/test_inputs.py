@@ -6,6 +6,7 @@ silently with a value other than the one given.
 
 from __future__ import annotations
 
+import json
 import os
 import warnings
 from pathlib import Path
@@ -16,7 +17,7 @@ import soundfile as sf
 
 from conftest import run_cli, synth_capture
 from readchan.capture import (MAX_SAMPLES, RATE_RANGE_HZ, Capture, NonPhysicalSampleWarning, TruncatedCaptureWarning,
-                              check_output_path, load_capture, repair_outliers, write_capture)
+                              check_output_path, display_path, load_capture, repair_outliers, write_capture)
 from readchan.condition import ConditionSettings
 from readchan.decode import DecodeSettings, decode_capture, decode_channel
 from readchan.errors import CaptureError, FormatError, ParameterError
@@ -467,3 +468,14 @@ def test_synth_writes_audio_to_a_name_that_is_not_utf8(tmp_path, monkeypatch, ca
     assert code == 0, err
     assert "out\\xe9" in err
     assert [r.frame.text for r in reads_of(decode_capture(load_capture(name))) if r.valid] == [TEXT]
+
+
+def test_json_source_of_a_name_that_is_not_utf8_is_escaped_text(tmp_path, swipe, monkeypatch, capsys):
+    x, rate = swipe
+    name = _bytes_name(tmp_path, b"caf\xe9.wav")
+    with open(name, "wb") as fh:
+        sf.write(fh, x, int(rate), subtype="PCM_16", format="WAV")
+    code, out, _ = run_cli(monkeypatch, capsys, "decode", "--json", "--no-field-check", name)
+    out.encode("utf-8")                     # no lone surrogate: a strict UTF-8 consumer can read it
+    sources = {r["source"] for r in json.loads(out)["reads"]}
+    assert sources == {display_path(name)} and sources.pop().endswith("caf\\xe9.wav")
