@@ -167,11 +167,21 @@ def differences(recorded, now, where: str = "") -> list[str]:
     return [] if same else [f"{where}: recorded {recorded!r}, now {now!r}"]
 
 
+def _portable(doc):
+    """``doc`` with every ``source`` path cut to its file name: the fixtures were recorded in one
+    checkout, and the comparison must hold in any other (a worktree, a fresh clone)."""
+    if isinstance(doc, dict):
+        return {k: (Path(v).name if k == "source" and isinstance(v, str) else _portable(v)) for k, v in doc.items()}
+    if isinstance(doc, list):
+        return [_portable(v) for v in doc]
+    return doc
+
+
 def check(golden: Path) -> list[str]:
     data = json.loads(golden.read_text())
     out = []
     for name, rec in data["fixtures"].items():
-        out += differences(rec, decode_fixture(FIXTURES / name), f"fixture {name}")
+        out += differences(_portable(rec), _portable(decode_fixture(FIXTURES / name)), f"fixture {name}")
     for case in data["cases"]:
         out += differences(data["synth"][case["id"]], decode_synth(case), case["id"])
     return out

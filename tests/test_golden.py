@@ -39,3 +39,11 @@ def test_comparison_sees_a_changed_value_and_a_lost_key_but_allows_a_new_key():
     assert golden.differences(rec, {"reads": []})
     assert golden.differences(rec, {"reads": [{"text": "%A?", "valid": True, "start_s": 0.5001}]})
     assert golden.differences(rec, {"reads": [{"text": "%A?", "valid": True, "start_s": 0.500001}]}) == []
+
+
+def test_comparison_holds_in_any_checkout_but_sees_a_changed_file_name():
+    rec = {"reads": [{"source": "/one/checkout/fixtures/a.wav", "text": "%A?"}]}
+    moved = {"reads": [{"source": "/another/place/fixtures/a.wav", "text": "%A?"}]}
+    renamed = {"reads": [{"source": "/one/checkout/fixtures/b.wav", "text": "%A?"}]}
+    assert golden.differences(golden._portable(rec), golden._portable(moved)) == []
+    assert golden.differences(golden._portable(rec), golden._portable(renamed))
