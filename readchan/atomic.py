@@ -124,9 +124,9 @@ def check_output_path(path: str | os.PathLike, *, force: bool = False, error: Er
             raise _fail(error, source, "is a directory")
         if not stat.S_ISREG(st.st_mode):
             raise _fail(error, source, f"is a {_file_type(st.st_mode)}, not a regular file; "
-                                       f"refusing to replace it (with or without --force)")
+                                       f"refusing to replace it (with or without force=True)")
         if not force:
-            raise _fail(error, source, "exists; pass --force to overwrite")
+            raise _fail(error, source, "exists; pass force=True to overwrite")
     parent = target.parent
     if not parent.is_dir():
         raise _fail(error, source, f"directory {str(parent)!r} does not exist")
@@ -227,10 +227,10 @@ def _commit(tmp: Path, target: Path, force: bool, source: str, error: ErrorType)
     try:
         os.link(tmp, target)           # fails if the target appeared meanwhile
     except FileExistsError:
-        raise _fail(error, source, "exists; pass --force to overwrite") from None
+        raise _fail(error, source, "exists; pass force=True to overwrite") from None
     except OSError:
         if os.path.lexists(target):    # file systems without hard links
-            raise _fail(error, source, "exists; pass --force to overwrite") from None
+            raise _fail(error, source, "exists; pass force=True to overwrite") from None
         os.replace(tmp, target)
 
 

@@ -913,9 +913,9 @@ def _load_text(p: Path, source: str, head: bytes, rate_hz: float | None,
     else:
         if rate_hz is None:
             if data.shape[1] == 1:
-                raise _err(source, "has a single column and no time column; pass --rate-hz to give the sample rate")
+                raise _err(source, "has a single column and no time column; pass rate_hz to give the sample rate")
             raise _err(source, "has no time column (the first column is not named time and is not increasing); "
-                               "pass --rate-hz to give the sample rate")
+                               "pass rate_hz to give the sample rate")
         rate = rate_hz
         values = data
         value_names, value_units = names, units

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 import sys
 import warnings
 from enum import Enum
@@ -374,6 +375,18 @@ def _stdout_closed() -> int:
     return EXIT_PIPE_CLOSED
 
 
+# The library's errors name its parameters; on the command line they read as the options.
+_CLI_SPELLINGS = (("force=True", "--force"), ("max_samples=None", "--force"), ("rate_hz", "--rate-hz"))
+_LIBRARY_NAME = re.compile(r"\b(pass|without) (" + "|".join(re.escape(a) for a, _ in _CLI_SPELLINGS) + r")(?![\w=])")
+
+
+def cli_spelling(message: str) -> str:
+    """``message`` with the library parameter it tells the user to pass (``pass rate_hz``,
+    ``pass force=True``) spelt as the command-line option (``pass --rate-hz``)."""
+    flags = dict(_CLI_SPELLINGS)
+    return _LIBRARY_NAME.sub(lambda m: f"{m.group(1)} {flags[m.group(2)]}", message)
+
+
 def _run() -> int:
     try:
         rv = app(standalone_mode=False)
@@ -383,7 +396,7 @@ def _run() -> int:
     except _StdoutClosed:
         raise
     except ReadchanError as e:
-        err.print(f"readchan: error: {e}", highlight=False, markup=False)
+        err.print(f"readchan: error: {cli_spelling(str(e))}", highlight=False, markup=False)
         return e.exit_code
     except KeyboardInterrupt:
         return 130

@@ -594,7 +594,7 @@ def test_existing_file_is_not_overwritten_without_force(tmp_path):
     path.write_bytes(b"precious")
     with pytest.raises(CaptureError) as excinfo:
         write_capture(path, tone(), RATE)
-    assert_one_line_error(excinfo, str(path), "exists; pass --force to overwrite")
+    assert_one_line_error(excinfo, str(path), "exists; pass force=True to overwrite")
     assert path.read_bytes() == b"precious"
 
 

@@ -278,7 +278,7 @@ def synthesize(spec: SynthSpec, *, max_samples: int | None = SAMPLE_LIMIT) -> Sy
     limit = HARD_SAMPLE_LIMIT if max_samples is None else min(int(max_samples), HARD_SAMPLE_LIMIT)
     if need > limit:
         gb = need * 8 / 1e9
-        hint = "" if limit == HARD_SAMPLE_LIMIT else "; pass --force (max_samples=None) to render it anyway"
+        hint = "" if limit == HARD_SAMPLE_LIMIT else "; pass max_samples=None to render it anyway"
         raise ParameterError(f"the capture would hold {need:,} samples ({gb:.1f} GB as float64), over the limit of "
                              f"{limit:,}; lower the rate, the number of swipes, the pauses, or raise the speed or "
                              f"density{hint}")
