@@ -492,14 +492,14 @@ def test_single_column_without_rate_asks_for_rate(tmp_path):
     path = write_text(tmp_path / "mono.csv", "".join(f"{v:.6f}\n" for v in tone(50)[:, 0]))
     with pytest.raises(CaptureError) as excinfo:
         load_capture(path)
-    assert_one_line_error(excinfo, str(path), "--rate")
+    assert_one_line_error(excinfo, str(path), "pass rate_hz")
 
 
 def test_columns_without_time_and_without_rate_ask_for_rate(tmp_path):
     path = write_text(tmp_path / "pair.csv", "".join(f"{a:.6f},{b:.6f}\n" for a, b in tone(50, channels=2)))
     with pytest.raises(CaptureError) as excinfo:
         load_capture(path)
-    assert_one_line_error(excinfo, str(path), "--rate")
+    assert_one_line_error(excinfo, str(path), "pass rate_hz")
 
 
 def test_time_column_alone_is_refused(tmp_path):
