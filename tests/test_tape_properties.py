@@ -5,9 +5,10 @@ SMPTE ST 12-1 and whose bytes follow the Kansas City standard (BYTE, Feb. 1976).
 from __future__ import annotations
 
 import numpy as np
-from hypothesis import given
+from hypothesis import example, given
 from hypothesis import strategies as st
 
+from readchan.synth.head import LorentzianPulse
 from readchan.tape import decode_kcs, decode_ltc
 from readchan.tape.ltc_word import count_to_label, frames_per_day, labels_per_second
 from readchan.tape.playback import Playback, PlaySpeed
@@ -32,6 +33,13 @@ def ltc_specs(draw):
 
 
 @given(ltc_specs())
+# reverse play at 3x whose capture stops just after the mid-cell transition of the 1 that
+# follows the last whole frame: its last cells (1s) were shifted to end the parse on a boundary
+@example(spec=LtcSpec(start="00:00:00:00", rate_fps=24.0, drop_frame=False, duration_s=0.5,
+                      user_bits=UserBits("counting", value=0),
+                      speed=PlaySpeed(((0.0, 3.0),), flutter_depth=0.0078125, flutter_hz=9.0),
+                      direction="reverse", signal="line", pulse=LorentzianPulse(pw50_m=3e-05),
+                      start_cell=0.0, playback=Playback(snr_db=30.0), rate_hz=96_000.0, seed=0))
 def test_every_ltc_frame_met_is_read_with_its_label_position_and_bits(spec):
     s = synthesize_ltc(spec)
     r = decode_ltc(s.samples, s.rate_hz)

@@ -38,6 +38,19 @@ def test_biphase_bits_survive_a_fivefold_speed_ramp_in_both_directions():
     assert np.array_equal(back.bits, bits[::-1])
 
 
+def test_biphase_bits_are_read_whole_when_the_signal_is_cut_inside_a_cell_of_a_one():
+    # the capture opens after the mid-cell transition of a 1 and closes after the mid-cell
+    # transition of another: the cells in between read as recorded, the two cut cells not at all
+    rng = np.random.default_rng(7)
+    bits = rng.integers(0, 2, 200).astype(np.uint8)
+    bits[::9] = 0
+    bits[-3:] = (0, 1, 1)                # 1s before the cut: a shifted parse would end on a boundary
+    bits[:2] = (1, 1)
+    pos, _ = biphase_positions(bits)
+    cut = np.concatenate(([-0.5], pos, [pos[-1] + 0.5]))
+    assert np.array_equal(bits_from_transitions(0.01 + (cut + 0.5) / 2400.0).bits, bits)
+
+
 def test_a_steady_tone_has_no_period_anchors():
     t = np.arange(500) / 2000.0
     at, _ = period_anchors(t)

@@ -6,8 +6,9 @@ margins, one run per stretch of continuous signal.
 
 Biphase mark has a transition at every bit-cell boundary and one more mid-cell for a 1: the
 same modulation as F2F on a card (ISO/IEC 7811-2; SMPTE ST 12-1 for LTC).  The cell decisions
-are those of :func:`readchan.timing.recover_bits` (the Viterbi parse of intervals against a
-bit-period trace).  What is tape-specific is the period trace:
+are the card channel's Viterbi parse of intervals against a bit-period trace
+(:mod:`readchan.timing`).  What is tape-specific is the period trace, and the parse's open
+ends (:func:`open_parse`: a stretch may start and stop inside a cell):
 
 * Tape plays from 0.1× to 10× nominal, with the speed changing during the capture, and a
   frame of timecode has no run of clocking zeros to learn the period from.  The trace is
@@ -40,7 +41,7 @@ from readchan.detect import Transitions, detect_head
 from readchan.errors import ParameterError
 from readchan.segment import segment
 from readchan.tape.crossings import hysteresis_crossings
-from readchan.timing import FLAG_LONE_HALF, BitStream, recover_bits
+from readchan.timing import FLAG_LONE_HALF, BitStream, _assemble
 
 ANCHOR_TOLERANCE = 0.3
 """A pair of intervals anchors the period when log2 of their ratio lies within ±0.3 of ±1."""
@@ -135,12 +136,68 @@ def period_trace(times_s: np.ndarray, *, window: int = 15) -> np.ndarray | None:
 
 
 def bits_from_times(times_s: np.ndarray) -> BitStream | None:
-    """Biphase-mark bits of one stretch of transition times, or None when it has no anchors."""
+    """Biphase-mark bits of one stretch of transition times, or None when it has no anchors.
+
+    The cells are the Viterbi parse of the intervals against :func:`period_trace`
+    (:func:`open_parse`)."""
     t = np.asarray(times_s, float)
     trace = period_trace(t)
     if trace is None:
         return None
-    return recover_bits(t, period_at=lambda q: np.interp(q, t, trace))
+    return open_parse(t, trace)
+
+
+def open_parse(t: np.ndarray, period_s: np.ndarray) -> BitStream:
+    """Biphase-mark cells of the transition times ``t`` (s) against the bit period ``period_s``
+    (s, at every transition): the sequence parse of :mod:`readchan.timing` (the same moves and
+    costs: a 0 is one interval, r = Δ/T near 1; a 1 is two, near ½ each; a lone half is a
+    flagged error) with open ends.
+
+    A stretch of tape signal starts and stops wherever the capture (or a dropout) cuts it, not
+    at a cell boundary: its first interval may be the second half of a 1 whose opening boundary
+    came before it, and its last the first half of a 1 whose closing boundary came after.  The
+    parse may therefore take the first interval as such a leading half and leave the last one
+    as such a trailing half, each costing what one half of a 1 costs in a pair,
+    ½·(r − ½)², and making no bit (the cell is not whole).  A parse closed at both ends would
+    instead have to call that half a lone half (cost ½ + (r − ½)²) or shift the cells before
+    it, taking a half interval for a 0 (cost ¼): the cheaper, and the wrong, choice when the
+    last cells are 1s.  Ties go to the closed parse.
+    """
+    t = np.asarray(t, float)
+    r = np.diff(t) / np.asarray(period_s, float)[:-1]
+    n = r.size
+    zero = ((r - 1.0) ** 2).tolist()
+    lone = (0.5 + (r - 0.5) ** 2).tolist()
+    half = (0.5 * (r - 0.5) ** 2).tolist()
+    pair = [float("inf")] + (((r[:-1] + r[1:] - 1.0) ** 2)
+                             + 0.5 * ((r[:-1] - 0.5) ** 2 + (r[1:] - 0.5) ** 2)).tolist()
+    move = [0] * (n + 1)        # 1: a 0 (one interval); 2: a 1 (two); 3: a lone half; 4: a leading half
+    cost = [0.0] * (n + 1)
+    for i in range(1, n + 1):
+        a = cost[i - 1] + zero[i - 1]
+        b = cost[i - 1] + lone[i - 1]
+        c = cost[i - 2] + pair[i - 1] if i >= 2 else float("inf")
+        if a <= b and a <= c:
+            cost[i], move[i] = a, 1
+        elif c <= b:
+            cost[i], move[i] = c, 2
+        else:
+            cost[i], move[i] = b, 3
+        if i == 1 and half[0] < cost[1]:
+            cost[1], move[1] = half[0], 4
+    i = n - 1 if n >= 2 and cost[n - 1] + half[n - 1] < cost[n] else n
+    kinds, lead = [], 0
+    while i > 0:
+        mv = move[i]
+        if mv == 4:
+            lead = 1
+        else:
+            kinds.append(mv)
+        i -= 2 if mv == 2 else 1
+    kinds.reverse()
+    widths = np.where(np.asarray(kinds, np.int8) == 2, 2, 1)
+    first = lead + np.concatenate(([0], np.cumsum(widths)[:-1])).astype(np.int64)[:len(kinds)]
+    return _assemble(t, first, kinds, r, np.asarray(period_s, float)[first])
 
 
 LINE_FILL = 0.6
