@@ -14,8 +14,9 @@ from typing import Optional
 
 import typer
 
-from readchan.cli import (CAPTURES, CHANNEL, FIELD_CHECK, FORMAT, HIGHPASS, JSON, LOWPASS, NOTCH, RATE_HZ, RATE_OLD, SIGNAL,
-                          SIGNAL_OLD, TRACK, UNMASK, Kind, _channels, _settings, app, err, out, renamed, schema)
+from readchan.cli_common import (CAPTURES, CHANNEL, FIELD_CHECK, FORMAT, HIGHPASS, JSON, LOWPASS, NOTCH, RATE_HZ, RATE_OLD, SIGNAL,
+                                 SIGNAL_OLD, TRACK, UNMASK, Kind, _channels, _settings, app, err, out, renamed,
+                                 schema)
 from readchan.errors import ParameterError
 
 PLOT_SUFFIXES = (".png", ".pdf", ".svg")

@@ -13,7 +13,7 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 from rich.text import Text
 
-from readchan.cli import Profile, app, err, out, schema, warn_line
+from readchan.cli_common import Profile, app, err, out, schema, warn_line
 from readchan.errors import ParameterError
 
 SWEPT = {"snr-db": "snr_db", "jitter": "jitter", "variation": "variation", "pw50-cell": "pw50_cell",

@@ -242,7 +242,7 @@ def test_python_warnings_reach_the_terminal_as_one_line(monkeypatch, capsys, tmp
 
 
 def test_warnings_of_other_libraries_are_one_line_with_their_category(monkeypatch, capsys):
-    from readchan import cli
+    from readchan import cli_decode
 
     def noisy(*a, **kw):
         np.log(np.zeros(1))                                # numpy: "divide by zero encountered in log"
@@ -250,7 +250,7 @@ def test_warnings_of_other_libraries_are_one_line_with_their_category(monkeypatc
 
     import typer
     typer_exit = typer.Exit
-    monkeypatch.setattr(cli, "_settings", noisy)
+    monkeypatch.setattr(cli_decode, "_settings", noisy)
     code, _, err = run(monkeypatch, capsys, "decode", FIXTURES / "track2-scope.csv")
     lines = [l for l in err.splitlines() if l.strip()]
     assert code == 0 and len(lines) == 1
