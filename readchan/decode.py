@@ -28,6 +28,7 @@ from readchan.framing import Frame, frame, frame_auto
 from readchan.recover import Recovery, confirm_correction, recover
 from readchan.segment import Segment, segment
 from readchan.timing import BitStream, recover_bits
+from readchan.units import speed_from_period_cm_s
 
 KINDS = ("auto", "head", "logic")
 
@@ -214,7 +215,7 @@ def guess_track(fmt_name: str, n_chars: int, channel: int, n_channels: int,
 
 def mean_speed_cm_s(bits: BitStream, density_bpi: float) -> float:
     """Mean speed in cm/s: density ρ (bit/inch) and bit period T give v = 2.54/(ρ·T) cm/s."""
-    return float(np.mean(2.54 / (density_bpi * bits.period_s)))
+    return float(np.mean(speed_from_period_cm_s(bits.period_s, density_bpi)))
 
 
 def quiet_mask(n: int, rate_hz: float, segments: list[Segment], *, guard_s: float = 0.01) -> np.ndarray:

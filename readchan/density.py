@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from readchan.formats import TRACKS, TrackSpec
+from readchan.units import bit_cell_m
 
 __all__ = ["TrackEvidence", "decide_track", "clocking_pw50_cell", "leading_zeros",
            "PW50_75_MAX", "PW50_210_MIN", "ZEROS_210_MIN", "ZEROS_75_MIN", "ZEROS_75_MAX"]
@@ -41,8 +42,8 @@ HEAD_PW50_MIN_M = 14e-6
 """Narrowest plausible head PW50 (m): sqrt(g² + 4(d+a)²) with g = 10 µm, d + a = 5 µm."""
 HEAD_PW50_MAX_M = 56e-6
 """Widest plausible head PW50 (m): g = 25 µm, d + a = 25 µm."""
-CELL_210_M = 0.0254 / 210.0
-CELL_75_M = 0.0254 / 75.0
+CELL_210_M = bit_cell_m(210.0)
+CELL_75_M = bit_cell_m(75.0)
 
 PW50_75_MAX = HEAD_PW50_MIN_M / CELL_210_M
 """Below this PW50/cell (0.116) no plausible head records at 210 bpi: the read is 75 bpi."""

@@ -74,6 +74,7 @@ from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK, noise_rms
 from readchan.framing import missing_end
 from readchan.sampling import MIN_SAMPLES_PER_HALF_CELL, MIN_SAMPLES_PER_PW50
 from readchan.timing import BOUNDARY, FLAG_LONE_HALF, FLAG_LONG
+from readchan.units import METRES_PER_INCH, speed_from_period_cm_s
 
 __all__ = [
     "LIMITS", "Amplitude", "format_check", "noise_source_text", "robust_noise", "quantisation_step", "verdict_text", "Anomaly", "ChannelReport", "Check", "FrontEnd", "Limit", "Noise", "PulseShape",
@@ -1049,7 +1050,7 @@ def _pulse_shape(tr, bs, w, rate_hz, timing: Timing, r: Read) -> PulseShape | No
         return None
     pw50_cell = isolated_pw50_cell(measured)
     t_cell = float(np.median(per))
-    pw50_m = None if timing.density_bpi is None else pw50_cell * 0.0254 / timing.density_bpi
+    pw50_m = None if timing.density_bpi is None else pw50_cell * METRES_PER_INCH / timing.density_bpi
     # resolution: half-cell-spaced over full-cell-spaced pulse amplitude
     halfs = _half_cell_pulses(ratio)
     fulls = _full_cell_pulses(ratio)
@@ -1086,7 +1087,7 @@ def _timing(r: Read) -> Timing:
     speed = fit = accel = None
     mean_v = vmin = vmax = mean_a = max_a = change = None
     if density is not None and n >= 2:
-        speed = 2.54 / (density * per)
+        speed = speed_from_period_cm_s(per, density)
         half = int(max(8, min(n // 16, 200)))
         fit, slope = _sliding_slope(t, speed, half)
         accel = slope / 100.0

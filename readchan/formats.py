@@ -29,6 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from readchan.errors import FormatError
+from readchan.units import bit_cell_m
 
 __all__ = [
     "CharFormat",
@@ -297,7 +298,7 @@ class TrackSpec:
     @property
     def bit_cell_m(self) -> float:
         """Length of one bit cell on the stripe, in metres (25.4 mm / density)."""
-        return 0.0254 / self.density_bpi
+        return bit_cell_m(self.density_bpi)
 
 
 TRACKS = {

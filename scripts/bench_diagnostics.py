@@ -28,6 +28,7 @@ from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 from readchan.synth.chain import FrontEnd
 from readchan.synth.head import KarlqvistPulse
+from readchan.units import bit_cell_m, speed_from_period_cm_s
 
 TEXTS = {1: "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?",    # invented
          2: ";9912345678901239=29121010000000000?",
@@ -37,7 +38,7 @@ HEAD = KarlqvistPulse(14.5e-6, 2.15e-6, 12.4e-6)
 
 def case(track, snr_db, speed_cm_s, lp_factor, order, family, ac_hz, scope, seed, hum_level=0.0):
     rate = 48_000.0 if speed_cm_s <= 60 else 96_000.0
-    half_cell_s = 0.0254 / (75.0 if track == 2 else 210.0) / 2 / (speed_cm_s / 100)
+    half_cell_s = bit_cell_m(75.0 if track == 2 else 210.0) / 2 / (speed_cm_s / 100)
     lp = min(lp_factor / half_cell_s, 0.45 * rate)
     fe = FrontEnd(ac_coupling_hz=ac_hz, preamp_lowpass_hz=lp, preamp_order=order, preamp_family=family,
                   quantize_bits=None if scope else 16, scope_volts_per_div=0.2 if scope else None,
@@ -58,7 +59,7 @@ def case(track, snr_db, speed_cm_s, lp_factor, order, family, ac_hz, scope, seed
         return row
     r = reads[0]
     density = 75.0 if track == 2 else 210.0
-    true_speed = float(np.mean(2.54 / (density * np.diff(res.cell_times_s[0][0]))))
+    true_speed = float(np.mean(speed_from_period_cm_s(np.diff(res.cell_times_s[0][0]), density)))
     row.update(read=True, snr_err_db=r.noise.snr_db - res.output_snr_db[0], track_got=r.read.track.number,
                basis=r.read.track_evidence.basis,
                speed_err=None if r.timing.mean_speed_cm_s is None else r.timing.mean_speed_cm_s / true_speed - 1,

@@ -35,6 +35,7 @@ from readchan.render import reads_of  # noqa: E402
 from readchan.synth import FrontEnd, Impairments, SpeedProfile, SynthSpec, synthesize  # noqa: E402
 from readchan.synth.card import track_content  # noqa: E402
 from readchan.synth.head import KarlqvistPulse  # noqa: E402
+from readchan.units import CM_PER_INCH  # noqa: E402
 
 
 def trial(seed: int, mode: str, ratio_lo: float, ratio_hi: float):
@@ -46,8 +47,8 @@ def trial(seed: int, mode: str, ratio_lo: float, ratio_hi: float):
     alphabet = [chr(c + fmt.offset) for c in range(2 ** fmt.data_bits) if c not in (fmt.start_code, fmt.end_code)]
     text = fmt.start_char + "".join(rng.choice(alphabet, int(rng.integers(1, spec_t.max_chars - 3)))) + fmt.end_char
     rate = float(rng.choice([44_100.0, 48_000.0, 96_000.0]))
-    speed = float(rng.uniform(10, min(150, rate * 2.54 / (spec_t.density_bpi * 6))))
-    pulse_rate_hz = 2 * speed / 2.54 * spec_t.density_bpi
+    speed = float(rng.uniform(10, min(150, rate * CM_PER_INCH / (spec_t.density_bpi * 6))))
+    pulse_rate_hz = 2 * speed / CM_PER_INCH * spec_t.density_bpi
     ratio = float(rng.uniform(ratio_lo, ratio_hi))
     order, family = int(rng.integers(1, 5)), str(rng.choice(["butterworth", "bessel"]))
     q = rng.choice([0, 16, 12, 8])

@@ -36,15 +36,13 @@ from readchan.synth.chain import FrontEnd, filter_chain, quantise
 from readchan.synth.f2f import f2f_positions
 from readchan.synth.head import KarlqvistPulse, LorentzianPulse, PulseModel
 from readchan.synth.speed import SpeedProfile
+from readchan.units import bit_cell_m
 
 CARD_LENGTH_M = 85.60e-3
 """ISO/IEC 7810 ID-1 card length (85.60 mm)."""
 
 FIRST_TRANSITION_M = 1.0e-3
 """Distance from the card's leading edge to the first recorded transition (our choice)."""
-
-METRES_PER_INCH = 0.0254
-
 
 @dataclass(frozen=True)
 class TrackContent:
@@ -70,7 +68,7 @@ class TrackContent:
     @property
     def cell_m(self) -> float:
         """Nominal bit-cell length in metres: 0.0254 / density_bpi."""
-        return METRES_PER_INCH / self.density_bpi
+        return bit_cell_m(self.density_bpi)
 
 
 @dataclass(frozen=True)
