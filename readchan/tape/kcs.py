@@ -31,7 +31,10 @@ Demodulation from zero crossings (each interval between crossings is a half cycl
    by the mark fraction over the middle 60 % of each of 11 bit cells, at the local bit time
    (1/baud)/speed.  The start cell must be tone (90 % covered) and mostly space, and at least
    6 of the 11 cells must be tone, else there is no byte here (band-limited noise after a
-   block can fake a start).  Stop bits that are not mark, or a cell without tone, are a
+   block can fake a start).  The bit before the start edge must be mark (a stop bit or idle,
+   ``MIN_MARK_BEFORE``), as a UART's start is a mark-to-space transition: noise just after the
+   trailer, still counted as tone by the 32-interval window that reaches back into the
+   trailer, fakes a start edge but not the clean mark before it.  Stop bits that are not mark, or a cell without tone, are a
    framing error.
    The first byte of a block needs ``min_leader_s`` of mark before it.  Where the tone is lost
    for up to ``max_dropout_s`` (a dropout), 1.5 bits of idle mark before a start bit resume the
@@ -67,6 +70,8 @@ MIN_TONE_CELLS = 6
 """A byte needs tone in at least 6 of its 11 cells; fewer is noise after a block, not a byte."""
 NEAR_OCTAVE = 0.15
 """An interval is on the tone lattice when log2 of it lies within ±0.15 octave (±11 %) of a tone."""
+MIN_MARK_BEFORE = 0.85
+"""Mark fraction of the bit before a start edge (a stop bit or idle: mark by the standard)."""
 MIN_QUALITY = 0.5
 """Fraction of on-lattice intervals (over 32) that makes a stretch tone; noise gives about 0.3."""
 
@@ -251,6 +256,10 @@ def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float
         frac, cov = track.fractions(a, b)
         if frac[0] >= 0.5 or cov[0] < 0.9 or np.count_nonzero(cov >= 0.5) < MIN_TONE_CELLS:
             k += 1                           # no clear start bit, or too little tone for a byte
+            continue
+        before, before_cov = track.fractions(np.array([t - bit_s]), np.array([t]))
+        if before[0] < MIN_MARK_BEFORE or before_cov[0] < 0.9:
+            k += 1                           # the line was not at mark before it: no start bit
             continue
         if not out:
             leader = _leader_s(track, t, min_leader_s)
