@@ -44,9 +44,3 @@ class ParameterError(ReadchanError):
 class OutputError(ReadchanError):
     """An output file cannot be written: it exists (without force), is not a regular file,
     or its directory is missing, full or refuses new files."""
-
-
-class NoDataError(ReadchanError):
-    """No transitions or no framed characters were found."""
-
-    exit_code = EXIT_NO_DATA

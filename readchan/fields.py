@@ -465,8 +465,3 @@ def _take_field(rest: str, width: int, sep: str) -> tuple[str | None, str]:
     if len(rest) < width:
         return None, rest
     return rest[:width], rest[width:]
-
-
-def _first_of(text: str, stops: str, start: int) -> int:
-    hits = [i for i in (text.find(ch, start) for ch in stops) if i >= 0]
-    return min(hits) if hits else len(text)

@@ -163,11 +163,6 @@ class CharFormat:
         """The end sentinel as a text character."""
         return self.char_of(self.end_code)
 
-    @property
-    def separator_char(self) -> str | None:
-        """The field separator as a text character, or None."""
-        return None if self.separator_code is None else self.char_of(self.separator_code)
-
     def char_bits(self, code: int) -> np.ndarray:
         """Bits of one character as written on the stripe.
 

@@ -8,8 +8,8 @@ from scipy.optimize import brentq
 
 from readchan.errors import ParameterError
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, TrackContent, synthesize
-from readchan.synth.f2f import f2f_bits_from_positions, f2f_positions
-from readchan.synth.head import KarlqvistPulse, LorentzianPulse, gap_loss, spacing_loss_db, wavelength_response
+from readchan.synth.f2f import f2f_positions
+from readchan.synth.head import KarlqvistPulse, LorentzianPulse, PulseModel, gap_loss, spacing_loss_db
 
 
 def _half_width(shape, guess):
@@ -25,6 +25,45 @@ def test_karlqvist_arctan_pulse_pw50_matches_closed_form(g, d, a):
     measured = _half_width(pulse.shape, pulse.pw50_m)
     assert measured == pytest.approx(math.sqrt(g**2 + 4 * (d + a) ** 2), rel=1e-9)
     assert pulse.pw50_m == pytest.approx(math.sqrt(g**2 + 4 * (d + a) ** 2), rel=1e-12)
+
+
+def wavelength_response(pulse: PulseModel, wavelength_m: np.ndarray) -> np.ndarray:
+    """Magnitude of the spatial Fourier transform of ``pulse`` at wavelengths λ (metres).
+
+    Computed numerically from the pulse shape, normalised to 1 at long wavelengths; for the
+    Karlqvist/arctan pulse this is the product of the gap loss and exp(−2π(d+a)/λ), which
+    the test below checks against the closed forms (a test instrument, not library code).
+    """
+    lam = np.atleast_1d(np.asarray(wavelength_m, dtype=float))
+    width = getattr(pulse, "pw50_m")
+    span = 4000.0 * width
+    n = 1 << 20
+    x = np.linspace(-span / 2, span / 2, n, endpoint=False)
+    dx = x[1] - x[0]
+    p = pulse.shape(x)
+    k = 2.0 * np.pi / lam
+    out = np.empty_like(lam)
+    dc = p.sum() * dx
+    for i, kk in enumerate(k):
+        out[i] = abs(np.sum(p * np.cos(kk * x)) * dx) / dc
+    return out
+
+
+
+def f2f_bits_from_positions(positions_m: np.ndarray, cell_m: float) -> np.ndarray:
+    """Inverse of :func:`f2f_positions` for ideal positions (a test instrument, not library code)."""
+    cells = np.round(np.diff(np.asarray(positions_m)) / cell_m * 2).astype(int)
+    bits = []
+    i = 0
+    while i < cells.size:
+        if cells[i] == 2:
+            bits.append(0)
+            i += 1
+        else:
+            bits.append(1)
+            i += 2
+    return np.asarray(bits, dtype=np.uint8)
+
 
 
 def test_lorentzian_pulse_is_half_height_at_half_pw50():

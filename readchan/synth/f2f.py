@@ -21,18 +21,3 @@ def f2f_positions(bits: np.ndarray, cell_m: float) -> np.ndarray:
     boundaries = np.arange(n + 1, dtype=float)
     mids = np.flatnonzero(b == 1).astype(float) + 0.5
     return np.sort(np.concatenate((boundaries, mids))) * cell_m
-
-
-def f2f_bits_from_positions(positions_m: np.ndarray, cell_m: float) -> np.ndarray:
-    """Inverse of :func:`f2f_positions` for ideal positions (used by tests and references)."""
-    cells = np.round(np.diff(np.asarray(positions_m)) / cell_m * 2).astype(int)
-    bits = []
-    i = 0
-    while i < cells.size:
-        if cells[i] == 2:
-            bits.append(0)
-            i += 1
-        else:
-            bits.append(1)
-            i += 2
-    return np.asarray(bits, dtype=np.uint8)

@@ -116,25 +116,3 @@ def gap_loss(gap_m: float, wavelength_m: np.ndarray) -> np.ndarray:
     """Gap loss factor sin(πg/λ)/(πg/λ) (Mee & Daniel); first null at λ = g."""
     lam = np.asarray(wavelength_m, dtype=float)
     return np.sinc(gap_m / lam)
-
-
-def wavelength_response(pulse: PulseModel, wavelength_m: np.ndarray) -> np.ndarray:
-    """Magnitude of the spatial Fourier transform of ``pulse`` at wavelengths λ (metres).
-
-    Computed numerically from the pulse shape, normalised to 1 at long wavelengths; for the
-    Karlqvist/arctan pulse this is the product of the gap loss and exp(−2π(d+a)/λ), which
-    the tests check against the closed forms above.
-    """
-    lam = np.atleast_1d(np.asarray(wavelength_m, dtype=float))
-    width = getattr(pulse, "pw50_m")
-    span = 4000.0 * width
-    n = 1 << 20
-    x = np.linspace(-span / 2, span / 2, n, endpoint=False)
-    dx = x[1] - x[0]
-    p = pulse.shape(x)
-    k = 2.0 * np.pi / lam
-    out = np.empty_like(lam)
-    dc = p.sum() * dx
-    for i, kk in enumerate(k):
-        out[i] = abs(np.sum(p * np.cos(kk * x)) * dx) / dc
-    return out
