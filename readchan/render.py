@@ -17,6 +17,25 @@ from readchan.fields import mask_text
 from readchan.framing import missing_end
 
 
+def track_keys(r: Read) -> dict:
+    """The assumed track's basis and evidence: keys shared by the decode and inspect JSON."""
+    ev = r.track_evidence
+    return {"track_basis": None if ev is None else ev.basis, "track_evidence": None if ev is None else ev.text()}
+
+
+def verdict_keys(r: Read, *, unmask: bool = False) -> dict:
+    """The (masked) text and why the read is or is not valid: keys shared by the decode and inspect JSON."""
+    f = r.frame
+    return {
+        "text": mask_text(f.text, f.format, unmask, trusted=r.valid),
+        "valid": bool(r.valid),
+        "checks_ok": bool(f.valid),
+        "rejected": r.rejected,
+        "damaged_chars": [{"char": c, "evidence": list(kinds)} for c, kinds in r.damaged_chars],
+        "field_errors": list(r.field_errors),
+    }
+
+
 def read_dict(r: Read, *, unmask: bool = False) -> dict:
     """One read as a JSON-ready dict (stable keys; see the README)."""
     f = r.frame
@@ -25,15 +44,9 @@ def read_dict(r: Read, *, unmask: bool = False) -> dict:
         "channel": r.channel,
         "format": f.format,
         "track": r.track.number if r.track else None,
-        "track_basis": None if r.track_evidence is None else r.track_evidence.basis,
-        "track_evidence": None if r.track_evidence is None else r.track_evidence.text(),
+        **track_keys(r),
         "direction": f.direction,
-        "text": mask_text(f.text, f.format, unmask, trusted=r.valid),
-        "valid": bool(r.valid),
-        "checks_ok": bool(f.valid),
-        "rejected": r.rejected,
-        "damaged_chars": [{"char": c, "evidence": list(kinds)} for c, kinds in r.damaged_chars],
-        "field_errors": list(r.field_errors),
+        **verdict_keys(r, unmask=unmask),
         "complete": bool(f.complete),
         "parity_failed": [int(i) for i in (~np.asarray(f.parity_ok, bool)).nonzero()[0]],
         "lrc_ok": bool(f.lrc_ok),

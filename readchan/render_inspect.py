@@ -15,6 +15,7 @@ from rich.text import Text
 
 from readchan.diagnose import ChannelReport, ReadReport, noise_source_text
 from readchan.fields import mask_text
+from readchan.render import track_keys, verdict_keys
 
 TRACE_POINTS = 64
 """Points of the speed and amplitude traces in the JSON output."""
@@ -65,23 +66,30 @@ def channel_dict(ch: ChannelReport) -> dict:
         "dc_offset": _f(fe.dc_offset),
         "wander_pp": _f(fe.wander_pp),
         "noise_rms": _f(fe.noise_rms),
-        "noise_from": fe.noise_from,
-        "quiet_s": _f(fe.quiet_s),
-        "noise_used_s": _f(fe.noise_used_s),
-        "noise_pulses_excluded": fe.noise_pulses_excluded,
-        "noise_slow_excluded_s": _f(fe.noise_slow_excluded_s),
-        "noise_floored": fe.noise_floored,
-        "quant_step": _f(fe.quant_step),
-        "hum_from": fe.hum_from,
-        "hum_hz": _f(fe.hum_hz),
-        "mains_hz": _f(fe.mains_hz),
-        "hum_amplitude": _f(fe.hum_amplitude),
+        **_noise_provenance(fe),
         "state": None if st is None else st.state,
         "reason": None if st is None or not st.reason else st.reason,
         "recording": None if st is None else st.recording,
         "undersampled": None if st is None else st.sampling.undersampled,
         "half_cell_samples": None if st is None else _f(st.sampling.half_cell_samples),
         "pw50_samples": None if st is None else _f(st.sampling.pw50_samples),
+    }
+
+
+def _noise_provenance(fe) -> dict:
+    """Where the noise and hum figures came from (keys shared by the channel and read JSON)."""
+    return {
+    "noise_from": fe.noise_from,
+    "quiet_s": _f(fe.quiet_s),
+    "noise_used_s": _f(fe.noise_used_s),
+    "noise_pulses_excluded": fe.noise_pulses_excluded,
+    "noise_slow_excluded_s": _f(fe.noise_slow_excluded_s),
+    "noise_floored": fe.noise_floored,
+    "quant_step": _f(fe.quant_step),
+    "hum_from": fe.hum_from,
+    "hum_hz": _f(fe.hum_hz),
+    "mains_hz": _f(fe.mains_hz),
+    "hum_amplitude": _f(fe.hum_amplitude),
     }
 
 
@@ -99,17 +107,11 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
         "channel": rd.channel,
         "read": r.index,
         "track": rd.track.number if rd.track else None,
-        "track_basis": None if rd.track_evidence is None else rd.track_evidence.basis,
-        "track_evidence": None if rd.track_evidence is None else rd.track_evidence.text(),
+        **track_keys(rd),
         "density_bpi": _f(tm.density_bpi),
         "format": fr.format,
         "direction": fr.direction,
-        "text": mask_text(fr.text, fr.format, unmask, trusted=rd.valid),
-        "valid": bool(rd.valid),
-        "checks_ok": bool(fr.valid),
-        "rejected": rd.rejected,
-        "damaged_chars": [{"char": c, "evidence": list(kinds)} for c, kinds in rd.damaged_chars],
-        "field_errors": list(rd.field_errors),
+        **verdict_keys(rd, unmask=unmask),
         "start_s": _f(rd.start_s),
         "end_s": _f(rd.end_s),
         "bits": int(len(rd.bits)),
@@ -127,17 +129,7 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
             "units": fe.units,
             "noise_rms": _f(n.noise_rms),
             "snr_db": _f(n.snr_db),
-            "noise_from": fe.noise_from,
-            "quiet_s": _f(fe.quiet_s),
-            "noise_used_s": _f(fe.noise_used_s),
-            "noise_pulses_excluded": fe.noise_pulses_excluded,
-            "noise_slow_excluded_s": _f(fe.noise_slow_excluded_s),
-            "noise_floored": fe.noise_floored,
-            "quant_step": _f(fe.quant_step),
-            "hum_from": fe.hum_from,
-            "hum_hz": _f(fe.hum_hz),
-            "mains_hz": _f(fe.mains_hz),
-            "hum_amplitude": _f(fe.hum_amplitude),
+            **_noise_provenance(fe),
             "hum_ratio": _f(n.hum_ratio),
             "dc_offset": _f(fe.dc_offset),
             "wander_pp": _f(fe.wander_pp),
