@@ -16,6 +16,27 @@ from readchan.tape.synth_kcs import KcsSpec, synthesize_kcs
 from readchan.tape.synth_ltc import LtcSpec, UserBits, synthesize_ltc
 
 
+def peak_jitter_s(spec: LtcSpec, speed: float) -> float:
+    """RMS timing error (s) that white noise gives a head pulse peak timed by a parabola through
+    three samples (readchan.detect._parabolic_times), for a frame played at ``speed``.
+
+    The peak is where V' = 0; the parabola's offset 0.5·(x₋ − x₊)/(x₋ − 2x₀ + x₊) is the
+    central-difference slope over the curvature, so noise of RMS σ_n moves it by
+    σ_t = σ_V' / |V''| = σ_n / (√2 · |V''(t_p)| · Δ), Δ the sample period: the noise-over-slope
+    estimate of timing jitter applied to the zero crossing of V' (common practice; the three-sample
+    form derived here).  The pulse is Lorentzian, V = P / (1 + (2t/T50)²) (../shared/REFERENCE.md),
+    so |V''(0)| = 8P / T50², with P = amplitude × speed (Faraday) and T50 = PW50 / tape speed.
+    σ_n = P · 10^(−SNR/20) bounds the playback's noise from above (its reference, the median
+    peak, is lowered by the overlap of opposite-polarity neighbours), and the isolated pulse's
+    curvature bounds |V''| from below (those neighbours, more than 0.29 PW50 away, add to it)."""
+    if spec.signal != "head" or spec.playback.snr_db is None:
+        return 0.0
+    peak = spec.amplitude * speed
+    t50_s = spec.pulse.pw50_m / (speed * spec.tape_speed_cm_s * 0.01)
+    sigma_n = peak * 10 ** (-spec.playback.snr_db / 20)
+    return sigma_n / (np.sqrt(2) * (8 * peak / t50_s ** 2) / spec.rate_hz)
+
+
 @st.composite
 def ltc_specs(draw):
     rate = draw(st.sampled_from([24.0, 25.0, 29.97, 30.0]))
@@ -40,6 +61,12 @@ def ltc_specs(draw):
                       speed=PlaySpeed(((0.0, 3.0),), flutter_depth=0.0078125, flutter_hz=9.0),
                       direction="reverse", signal="line", pulse=LorentzianPulse(pw50_m=3e-05),
                       start_cell=0.0, playback=Playback(snr_db=30.0), rate_hz=96_000.0, seed=0))
+# raw head at half speed, 30 dB: a last frame's opening peak 4.19e-5 s late, 3.1 σ of the
+# noise's peak-timing jitter (1.33e-5 s; measured over 280 frames of 40 seeds: 1.37e-5 s)
+@example(spec=LtcSpec(start="00:00:00:00", rate_fps=29.97, drop_frame=False, duration_s=0.5338672005338673,
+                      user_bits=UserBits("counting", value=0), speed=PlaySpeed(((0.0, 0.5),), flutter_hz=9.0),
+                      direction="reverse", signal="head", pulse=LorentzianPulse(pw50_m=3e-05),
+                      start_cell=30.0, playback=Playback(snr_db=30.0), rate_hz=48_000.0, seed=670))
 def test_every_ltc_frame_met_is_read_with_its_label_position_and_bits(spec):
     s = synthesize_ltc(spec)
     r = decode_ltc(s.samples, s.rate_hz)
@@ -54,10 +81,12 @@ def test_every_ltc_frame_met_is_read_with_its_label_position_and_bits(spec):
     assert [f.timecode for f in frames] == [f.timecode for f in s.frames]
     assert [f.user_bits for f in frames] == [f.user_bits for f in s.frames]
     # head pulses at slow play are wide against the cell, and their overlap shifts the peaks:
-    # positions hold to 5 % of a cell at the frame's speed
+    # positions hold to 5 % of a cell at the frame's speed (noise-free: under 5e-6 s), plus five
+    # σ of the noise's peak-timing jitter (peak_jitter_s; a Gaussian passes 5 σ once in 1.7e6)
     for got, want in zip(frames, s.frames):
         cell_s = 1.0 / (80 * spec.rate_fps * want.speed)
-        assert abs(got.position_s - want.position_s) < max(3e-5, 0.05 * cell_s)
+        allowed_s = max(3e-5, 0.05 * cell_s) + 5 * peak_jitter_s(spec, want.speed)
+        assert abs(got.position_s - want.position_s) < allowed_s
         assert got.direction == want.direction
     assert all(e.kind not in ("jump", "splice", "damaged") for e in r.events)
 
