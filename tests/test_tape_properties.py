@@ -111,6 +111,15 @@ def kcs_specs(draw):
 @example(spec=KcsSpec(data=b"\x00" * 9, baud=1200, shape="sine", bit_phase_deg=0.0, idle_bits=(0.0, 0.0, 1.0),
                       leader_s=0.1, speed=PlaySpeed(((0.0, 1.0625),), wow_hz=1.3),
                       playback=Playback(snr_db=20.0, band_hz=(300.0, 3500.0)), rate_hz=48_000.0, seed=203))
+# 1200 baud 00 00 with one idle bit frames cleanly at 300 too (as f2): judged per quarter cell,
+# that read shows the 1200-baud cells of the other tone and 1200 wins the tie
+@example(spec=KcsSpec(data=b"\x00\x00", baud=1200, shape="sine", bit_phase_deg=0.0, idle_bits=(1.0,),
+                      leader_s=0.1, speed=PlaySpeed(((0.0, 1.0),), wow_hz=1.3),
+                      playback=Playback(snr_db=20.0), rate_hz=48_000.0, seed=0))
+# a start edge placed 0.1 bit late: the mark before it is judged set back from the edge
+@example(spec=KcsSpec(data=b"\x00" * 4, baud=1200, shape="sine", bit_phase_deg=1.0, idle_bits=(0.900390625,),
+                      leader_s=0.1, speed=PlaySpeed(((0.0, 0.9),), wow_hz=1.3),
+                      playback=Playback(snr_db=20.0), rate_hz=48_000.0, seed=1))
 def test_every_kcs_byte_is_read_at_its_time(spec):
     s = synthesize_kcs(spec)
     r = decode_kcs(s.samples, s.rate_hz)

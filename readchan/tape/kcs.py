@@ -32,7 +32,8 @@ Demodulation from zero crossings (each interval between crossings is a half cycl
    (1/baud)/speed.  The start cell must be tone (90 % covered) and mostly space, and at least
    6 of the 11 cells must be tone, else there is no byte here (band-limited noise after a
    block can fake a start).  The bit before the start edge must be mark (a stop bit or idle,
-   ``MIN_MARK_BEFORE``), as a UART's start is a mark-to-space transition: noise just after the
+   ``MIN_MARK_BEFORE``; the window is set back 0.2 bit, as the edge is placed to about a tenth
+   of a bit), as a UART's start is a mark-to-space transition: noise just after the
    trailer, still counted as tone by the 32-interval window that reaches back into the
    trailer, fakes a start edge but not the clean mark before it.  Stop bits that are not mark, or a cell without tone, are a
    framing error.
@@ -47,6 +48,10 @@ with framing errors or dropouts wins.  On a tie (a 300-baud stream of some bytes
 one, also frames cleanly at 1200, since its tone changes only at 300-baud cell boundaries)
 300 wins unless its mean bit margin is below 0.8 of the 1200-baud one: read at 300, a
 1200-baud stream puts about 2.4 of its cells in each judged window, which mixes the tones.
+The 300-baud margin for this comparison is judged per quarter cell (the middle 60 % of each
+1200-baud cell inside it, against the bit of the whole cell): a 1200-baud stream whose runs
+happen to fill most of each 300-baud window (0x00 bytes, one idle bit) then shows the 1200-baud
+cell of the other tone, where a true 300-baud cell is one tone throughout.
 """
 
 from __future__ import annotations
@@ -257,7 +262,7 @@ def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float
         if frac[0] >= 0.5 or cov[0] < 0.9 or np.count_nonzero(cov >= 0.5) < MIN_TONE_CELLS:
             k += 1                           # no clear start bit, or too little tone for a byte
             continue
-        before, before_cov = track.fractions(np.array([t - bit_s]), np.array([t]))
+        before, before_cov = track.fractions(np.array([t - 1.2 * bit_s]), np.array([t - 0.2 * bit_s]))
         if before[0] < MIN_MARK_BEFORE or before_cov[0] < 0.9:
             k += 1                           # the line was not at mark before it: no start bit
             continue
@@ -280,6 +285,21 @@ def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float
         prev_end = next_t
         k = int(np.searchsorted(onsets, next_t))
     return out, times, errors, margins, speeds, leader, dropouts
+
+
+def _quarter_margin(track: ToneTrack, data: list[int], times: list[float], speeds: list[float],
+                    baud: int) -> float:
+    """Mean over bytes of the smallest signed margin (2·mark fraction − 1, sign of the cell's bit)
+    over the middle 60 % of each quarter of the 11 cells (module docstring, baud rate); 0 for none."""
+    if not data:
+        return 0.0
+    t = np.asarray(times, float)[:, None]
+    quarter_s = 1.0 / (4 * baud * np.asarray(speeds, float))[:, None]
+    q = np.arange(4 * BYTE_BITS)[None, :]
+    frac, cov = track.fractions((t + (q + 0.2) * quarter_s).ravel(), (t + (q + 0.8) * quarter_s).ravel())
+    bits = kcs_bits(bytes(data)).reshape(-1, BYTE_BITS).repeat(4, axis=1).astype(float)
+    signed = np.where(cov.reshape(bits.shape) >= 0.5, (2 * frac.reshape(bits.shape) - 1) * (2 * bits - 1), 1.0)
+    return float(np.mean(signed.min(axis=1)))
 
 
 def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: int | None = None,
@@ -317,7 +337,8 @@ def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: i
         trials = {b: _uart(track, b, min_leader_s, max_dropout_s) for b in BAUDS}
         share = {b: (len(u[2]) + len(u[6])) / max(1, len(u[0])) if u[0] else 2.0 for b, u in trials.items()}
         if share[300] == share[1200]:
-            m300, m1200 = (float(np.mean(trials[b][3])) if trials[b][3] else 0.0 for b in BAUDS)
+            m300 = _quarter_margin(track, trials[300][0], trials[300][1], trials[300][4], 300)
+            m1200 = float(np.mean(trials[1200][3])) if trials[1200][3] else 0.0
             used = 300 if m300 >= 0.8 * m1200 else 1200
         else:
             used = min(share, key=share.get)
