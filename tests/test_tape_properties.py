@@ -120,6 +120,10 @@ def kcs_specs(draw):
 @example(spec=KcsSpec(data=b"\x00" * 4, baud=1200, shape="sine", bit_phase_deg=1.0, idle_bits=(0.900390625,),
                       leader_s=0.1, speed=PlaySpeed(((0.0, 0.9),), wow_hz=1.3),
                       playback=Playback(snr_db=20.0), rate_hz=48_000.0, seed=1))
+# the same late edge cut the leader's last step to 0.896 mark: the byte was not read at 1200
+@example(spec=KcsSpec(data=b"\x00", baud=1200, shape="sine", bit_phase_deg=146.0, idle_bits=(0.0,), leader_s=0.1,
+                      speed=PlaySpeed(((0.0, 1.0288720545717418),), wow_depth=0.012712399950278924, wow_hz=1.3),
+                      playback=Playback(snr_db=20.0), rate_hz=48_000.0, seed=109))
 def test_every_kcs_byte_is_read_at_its_time(spec):
     s = synthesize_kcs(spec)
     r = decode_kcs(s.samples, s.rate_hz)

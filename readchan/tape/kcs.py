@@ -32,11 +32,11 @@ Demodulation from zero crossings (each interval between crossings is a half cycl
    (1/baud)/speed.  The start cell must be tone (90 % covered) and mostly space, and at least
    6 of the 11 cells must be tone, else there is no byte here (band-limited noise after a
    block can fake a start).  The bit before the start edge must be mark (a stop bit or idle,
-   ``MIN_MARK_BEFORE``; the window is set back 0.2 bit, as the edge is placed to about a tenth
-   of a bit), as a UART's start is a mark-to-space transition: noise just after the
-   trailer, still counted as tone by the 32-interval window that reaches back into the
-   trailer, fakes a start edge but not the clean mark before it.  Stop bits that are not mark, or a cell without tone, are a
-   framing error.
+   ``MIN_MARK_BEFORE``), as a UART's start is a mark-to-space transition: noise just after
+   the trailer, still counted as tone by the 32-interval window that reaches back into the
+   trailer, fakes a start edge but not the clean mark before it.  That window and the
+   leader's end ``EDGE_SETBACK`` before the edge.  Stop bits that are not mark, or a cell
+   without tone, are a framing error.
    The first byte of a block needs ``min_leader_s`` of mark before it.  Where the tone is lost
    for up to ``max_dropout_s`` (a dropout), 1.5 bits of idle mark before a start bit resume the
    block and the loss is recorded as a dropout (bytes cut by it are framing errors, bytes inside
@@ -75,6 +75,9 @@ MIN_TONE_CELLS = 6
 """A byte needs tone in at least 6 of its 11 cells; fewer is noise after a block, not a byte."""
 NEAR_OCTAVE = 0.15
 """An interval is on the tone lattice when log2 of it lies within ±0.15 octave (±11 %) of a tone."""
+EDGE_SETBACK = 0.2
+"""The mark before a start edge (leader, idle, stop bit) is judged up to 0.2 bit before the edge,
+which is placed to about a tenth of a bit: a window up to the edge takes in the start bit's space."""
 MIN_MARK_BEFORE = 0.85
 """Mark fraction of the bit before a start edge (a stop bit or idle: mark by the standard)."""
 MIN_QUALITY = 0.5
@@ -250,24 +253,25 @@ def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float
         if not in_block:
             # a leader opens a block; after a short loss of tone inside one, 1.5 bits of idle
             # mark resume it and the loss is recorded as a dropout
-            idle = _leader_s(track, t, min(min_leader_s, 1.5 * bit_s))
+            idle = _leader_s(track, t - EDGE_SETBACK * bit_s, min(min_leader_s, 1.5 * bit_s))
             if idle < min_leader_s:
                 if not (out and t - prev_end <= max_dropout_s and idle >= 1.5 * bit_s):
                     k += 1
                     continue
-                lost = (float(prev_end), t - idle)
+                lost = (float(prev_end), t - EDGE_SETBACK * bit_s - idle)
         a = t + (centres[:, 0] - half) * bit_s
         b = t + (centres[:, 0] + half) * bit_s
         frac, cov = track.fractions(a, b)
         if frac[0] >= 0.5 or cov[0] < 0.9 or np.count_nonzero(cov >= 0.5) < MIN_TONE_CELLS:
             k += 1                           # no clear start bit, or too little tone for a byte
             continue
-        before, before_cov = track.fractions(np.array([t - 1.2 * bit_s]), np.array([t - 0.2 * bit_s]))
+        before, before_cov = track.fractions(np.array([t - (1 + EDGE_SETBACK) * bit_s]),
+                                             np.array([t - EDGE_SETBACK * bit_s]))
         if before[0] < MIN_MARK_BEFORE or before_cov[0] < 0.9:
             k += 1                           # the line was not at mark before it: no start bit
             continue
         if not out:
-            leader = _leader_s(track, t, min_leader_s)
+            leader = _leader_s(track, t - EDGE_SETBACK * bit_s, min_leader_s)
         if lost is not None:
             dropouts.append(lost)
         bits = (frac > 0.5).astype(np.int64)
