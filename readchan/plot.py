@@ -123,31 +123,73 @@ def _plot_read(sf, ch: ChannelReport, r: ReadReport, unmask: bool) -> int:
     sf.suptitle(f"channel {rd.channel}, read {r.index}: {track}, {rd.frame.format} {rd.frame.direction}, "
                 f"{len(rd.bits)} bits, {status}\n{r.verdict}", fontsize=10,
                 color="black" if not r.failed else "firebrick")
-    _overview(ax_over, ch, r)
     text = mask_text(rd.frame.text, rd.frame.format, unmask, trusted=rd.valid)
+    spans = masked_spans(r, text)
+    _overview(ax_over, ch, r, spans)
     ss = rd.frame.bit_index[0]          # the start sentinel's bits (time order differs by direction)
     start = int(ss.min()) - 8 if rd.frame.direction == "forward" else int(ss.max()) + 9 - ZOOM_BITS
-    _zoom(ax_z1, ch, r, max(0, start), text, "at the start sentinel")
+    _zoom(ax_z1, ch, r, max(0, start), text, spans, "at the start sentinel")
     worst = tm.margin_min_bit
-    _zoom(ax_z2, ch, r, max(0, worst - ZOOM_BITS // 2), text,
+    _zoom(ax_z2, ch, r, max(0, worst - ZOOM_BITS // 2), text, spans,
           f"around the least margin ({tm.margin_min:.2f}, bit {worst})", mark_bit=worst)
-    _intervals(ax_r, r)
-    _speed_amplitude(ax_v, ch, r)
+    _intervals(ax_r, r, spans)
+    _speed_amplitude(ax_v, ch, r, spans)
     return 5
 
 
-def _overview(ax, ch: ChannelReport, r: ReadReport) -> None:
+def masked_spans(r: ReadReport, text: str) -> np.ndarray:
+    """Time spans (s), shape (k, 2), of the characters that ``text`` masks.
+
+    The times of the pulses and intervals under a character spell out its bits as surely as a
+    bit label does (a half-cell interval is a 1), so the plots draw neither the waveform, the
+    transition markers nor the interval points inside these spans.
+    """
+    raw, bs = r.read.frame.text, r.read.bits
+    hidden = [c for c in range(min(len(text), len(raw))) if text[c] != raw[c]]
+    if not hidden or len(bs) == 0:
+        return np.zeros((0, 2))
+    bc = r.bit_char()
+    ends = np.concatenate((bs.start_s[1:], [bs.start_s[-1] + bs.period_s[-1]]))
+    spans = []
+    for c in hidden:
+        ks = np.flatnonzero(bc == c)
+        if ks.size:
+            spans.append((float(bs.start_s[ks].min()), float(ends[ks].max())))
+    return np.asarray(spans, float).reshape(-1, 2)
+
+
+def _inside(t: np.ndarray, spans: np.ndarray) -> np.ndarray:
+    """True where a time ``t`` (s) lies in one of ``spans``."""
+    t = np.asarray(t, float)
+    out = np.zeros(t.shape, bool)
+    for a, b in spans:
+        out |= (t >= a) & (t <= b)
+    return out
+
+
+def _shade_masked(ax, spans: np.ndarray, label: bool = False) -> None:
+    for a, b in spans:
+        ax.axvspan(a, b, color="0.88", lw=0, zorder=0)
+    if label and spans.size:
+        ax.text(0.5 * (spans[:, 0].min() + spans[:, 1].max()), 0.0, "masked", ha="center", va="center",
+                fontsize=8, color="0.45", clip_on=True)
+
+
+def _overview(ax, ch: ChannelReport, r: ReadReport, spans: np.ndarray) -> None:
     rd = r.read
     fe = ch.front_end
     pad = 0.05 * (rd.end_s - rd.start_s) + 0.005
     a, b = _span(ch, rd.start_s - pad, rd.end_s + pad)
     y = ch.wideband[a:b]
     t, lo, hi = _decimate(a / fe.rate_hz, fe.rate_hz, y, OVERVIEW_BINS)
-    ax.fill_between(t, lo, hi, color="0.35", lw=0.0, step="mid")
+    hide = _inside(t, spans)
+    ax.fill_between(t, np.where(hide, np.nan, lo), np.where(hide, np.nan, hi), color="0.35", lw=0.0, step="mid")
     ax.axvspan(rd.start_s, rd.end_s, color="tab:green", alpha=0.08, lw=0)
+    _shade_masked(ax, spans)
     tr = rd.transitions
     if r.amplitude is not None and len(tr) <= 3000:
-        ax.plot(tr.times_s, r.amplitude.peak * np.sign(tr.amplitude), ".", ms=1.5, color="tab:blue")
+        keep = ~_inside(tr.times_s, spans)
+        ax.plot(tr.times_s[keep], (r.amplitude.peak * np.sign(tr.amplitude))[keep], ".", ms=1.5, color="tab:blue")
     for an in r.anomalies[:200]:
         ax.axvline(an.t_s, color="firebrick", lw=0.8, alpha=0.7)
     ax.set_xlim(t[0], t[-1])
@@ -157,7 +199,8 @@ def _overview(ax, ch: ChannelReport, r: ReadReport) -> None:
     ax.tick_params(labelsize=8)
 
 
-def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, where: str, mark_bit: int | None = None) -> None:
+def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, spans: np.ndarray, where: str,
+          mark_bit: int | None = None) -> None:
     rd, bs = r.read, r.read.bits
     fe = ch.front_end
     n = len(bs)
@@ -171,9 +214,10 @@ def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, where: st
     a, b = _span(ch, t0, t1)
     y = ch.wideband[a:b]
     tt = np.arange(a, b) / fe.rate_hz
-    ax.plot(tt, y, color="0.3", lw=0.8)
+    ax.plot(tt, np.where(_inside(tt, spans), np.nan, y), color="0.3", lw=0.8)
+    _shade_masked(ax, spans, label=True)
     tr = rd.transitions
-    sel = (tr.times_s >= t0) & (tr.times_s <= t1)
+    sel = (tr.times_s >= t0) & (tr.times_s <= t1) & ~_inside(tr.times_s, spans)
     if r.amplitude is not None:
         ax.plot(tr.times_s[sel], (r.amplitude.peak * np.sign(tr.amplitude))[sel], "o", ms=3,
                 mfc="none", color="tab:blue")
@@ -212,9 +256,11 @@ def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, where: st
     ax.tick_params(labelsize=7)
 
 
-def _intervals(ax, r: ReadReport) -> None:
+def _intervals(ax, r: ReadReport, spans: np.ndarray) -> None:
     tm = r.timing
-    x, y = tm.ratio_t_s, tm.ratio
+    keep = ~_inside(tm.ratio_t_s, spans)
+    x, y = tm.ratio_t_s[keep], tm.ratio[keep]
+    _shade_masked(ax, spans)
     lo_b = BOUNDARY - 0.25 * _MARGIN_LIMIT
     hi_b = BOUNDARY + 0.25 * _MARGIN_LIMIT
     ax.axhspan(lo_b, hi_b, color="firebrick", alpha=0.10, lw=0)
@@ -238,16 +284,20 @@ def _intervals(ax, r: ReadReport) -> None:
     ax.tick_params(labelsize=8)
 
 
-def _speed_amplitude(ax, ch: ChannelReport, r: ReadReport) -> None:
+def _speed_amplitude(ax, ch: ChannelReport, r: ReadReport, spans: np.ndarray) -> None:
     tm = r.timing
+    # a per-bit figure under a masked character follows its bit pattern (peak shift): not drawn there
+    per_bit = _inside(tm.bit_t_s, spans)
     if tm.speed_cm_s is not None:
-        ax.plot(tm.bit_t_s, tm.speed_cm_s, color="tab:green", lw=0.6, alpha=0.5, label="speed per bit")
+        ax.plot(tm.bit_t_s, np.where(per_bit, np.nan, tm.speed_cm_s), color="tab:green", lw=0.6, alpha=0.5,
+                label="speed per bit")
         ax.plot(tm.bit_t_s, tm.speed_fit_cm_s, color="darkgreen", lw=1.8, label="speed (sliding fit)")
         ax.set_ylabel("speed (cm/s)", fontsize=8, color="darkgreen")
         title = (f"speed: mean {tm.mean_speed_cm_s:.1f} cm/s, {tm.min_speed_cm_s:.1f}–{tm.max_speed_cm_s:.1f}; "
                  f"acceleration mean {tm.mean_accel_m_s2:+.2f} m/s², max |a| {tm.max_abs_accel_m_s2:.2f} m/s²")
     else:
-        ax.plot(tm.bit_t_s, tm.period_s * 1e6, color="tab:green", lw=0.8, label="bit period")
+        ax.plot(tm.bit_t_s, np.where(per_bit, np.nan, tm.period_s * 1e6), color="tab:green", lw=0.8,
+                label="bit period")
         ax.set_ylabel("bit period (µs)", fontsize=8, color="darkgreen")
         title = "bit period (no track density known for a speed)"
     ax.set_xlabel("time (s)", fontsize=8)
@@ -255,9 +305,10 @@ def _speed_amplitude(ax, ch: ChannelReport, r: ReadReport) -> None:
     if r.amplitude is not None:
         a = r.amplitude
         ax2 = ax.twinx()
-        ax2.plot(a.t_s, a.peak, ".", ms=1.5 if a.peak.size > 2000 else 2.5, color="tab:purple", alpha=0.35,
-                 rasterized=True)
-        ax2.plot(a.t_s, a.smooth, color="tab:purple", lw=1.2, label="|peak| (running median)")
+        hide = _inside(a.t_s, spans)        # per-pulse points sit at the transitions: they spell out bits
+        ax2.plot(a.t_s[~hide], a.peak[~hide], ".", ms=1.5 if a.peak.size > 2000 else 2.5, color="tab:purple",
+                 alpha=0.35, rasterized=True)
+        ax2.plot(a.t_s, np.where(hide, np.nan, a.smooth), color="tab:purple", lw=1.2, label="|peak| (running median)")
         ax2.set_ylabel(f"|peak| ({ch.front_end.units})", fontsize=8, color="tab:purple")
         ax2.set_ylim(0, 1.15 * float(a.peak.max()) if a.peak.size else 1)
         ax2.tick_params(labelsize=8)

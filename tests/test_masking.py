@@ -109,3 +109,39 @@ def test_the_unmasked_outputs_do_show_the_account_number(monkeypatch, capsys, ca
     path, _ = captures[False]
     _, doc, _ = run(monkeypatch, capsys, "decode", "--json", "--unmask", path)
     assert json.loads(doc)["reads"][0]["text"] == TEXT
+
+
+@pytest.mark.parametrize("damaged", [False, True])
+def test_plots_draw_no_pulse_or_interval_inside_a_masked_character(captures, damaged):
+    # the times of pulses and intervals under a character spell out its bits (a half-cell
+    # interval is a 1) as surely as a bit label does, in a vector file most of all
+    import matplotlib.lines
+
+    from readchan.fields import mask_text
+    from readchan.plot import masked_spans
+
+    _, cap = captures[damaged]
+    reports = inspect_capture(cap)
+    (ch,) = reports
+    (r,) = ch.reads
+    spans = masked_spans(r, mask_text(r.read.frame.text, r.read.frame.format, False, trusted=r.read.valid))
+    assert spans.size and (spans[:, 1] > spans[:, 0]).all()
+
+    def drawn_inside(unmask: bool) -> int:
+        fig, _ = report_figure(reports, unmask=unmask)
+        count = 0
+        for line in fig.findobj(matplotlib.lines.Line2D):
+            x = np.asarray(line.get_xdata(), float)
+            y = np.asarray(line.get_ydata(), float)
+            if x.size < 3 or x.size != y.size:          # axis lines and cell-boundary rules
+                continue
+            if line.get_label() == "speed (sliding fit)":
+                continue        # a fit over many bits: no single bit shows in it
+            inside = np.zeros(x.size, bool)
+            for a, b in spans:
+                inside |= (x > a) & (x < b)
+            count += int(np.count_nonzero(inside & np.isfinite(y)))
+        return count
+
+    assert drawn_inside(False) == 0
+    assert drawn_inside(True) > 100          # the same spans are drawn when unmasked
