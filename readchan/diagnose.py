@@ -71,6 +71,7 @@ from readchan.capture import Capture, repair_outliers
 from readchan.condition import ConditionSettings, HumFit, condition, fit_hum
 from readchan.decode import ChannelResult, DecodeSettings, Read, between_pulses_mask, decode_channel, quiet_mask
 from readchan.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK, noise_rms
+from readchan.detect import quantisation_step as grid_step
 from readchan.framing import missing_end
 from readchan.sampling import MIN_SAMPLES_PER_HALF_CELL, MIN_SAMPLES_PER_PW50
 from readchan.timing import BOUNDARY, FLAG_LONE_HALF, FLAG_LONG
@@ -617,20 +618,8 @@ def quantised_sigma(x: np.ndarray, use: np.ndarray, step: float, rate_hz: float)
 
 def quantisation_step(x: np.ndarray) -> float | None:
     """The converter's step when the samples lie on a uniform grid (a 16-bit WAV, an 8-bit
-    scope export), else None.  The step is the smallest difference between distinct values,
-    accepted when 99 % of the differences are whole multiples of it (within 1 %)."""
-    sub = np.asarray(x[:: max(1, x.size // 200_000)], float)
-    u = np.unique(sub)
-    if u.size < 2 or u.size > max(16, sub.size // 4):
-        return None
-    d = np.diff(u)
-    q = float(d.min())
-    if not q > 0:
-        return None
-    k = d / q
-    if np.mean(np.abs(k - np.round(k)) < 0.01) < 0.99:
-        return None
-    return q
+    scope export), else None; the test is :func:`readchan.detect.quantisation_step`'s."""
+    return grid_step(x) or None
 
 
 @dataclass(frozen=True)
