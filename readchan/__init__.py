@@ -18,53 +18,36 @@ use, so ``import readchan`` stays cheap (no numpy, scipy or matplotlib).
 from __future__ import annotations
 
 import importlib
-import sys
-import types
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 __version__ = "0.1.0"
 
 if TYPE_CHECKING:          # for type checkers only; at run time these load lazily (__getattr__)
-    from readchan.capture import Capture
-    from readchan.condition import ConditionSettings
-    from readchan.decode import ChannelResult, DecodeSettings, Read
-    from readchan.diagnose import ChannelReport, ReadReport
+    from readchan.io.capture import Capture
+    from readchan.frontend.condition import ConditionSettings
+    from readchan.channel import ChannelResult, DecodeSettings, Read
+    from readchan.measure.diagnose import ChannelReport, ReadReport
     from readchan.errors import CaptureError, FormatError, OutputError, ParameterError, ReadchanError
-    from readchan.framing import Frame
+    from readchan.formats.iso7811.framing import Frame
     from readchan.synth import Impairments, SpeedProfile, SynthResult, SynthSpec
-    from readchan.timing import BitStream
+    from readchan.linecode.f2f import BitStream
 
 # public name → the module that defines it
 _LAZY = {
-    "Capture": "readchan.capture",
-    "ConditionSettings": "readchan.condition",
-    "DecodeSettings": "readchan.decode", "ChannelResult": "readchan.decode", "Read": "readchan.decode",
-    "ChannelReport": "readchan.diagnose", "ReadReport": "readchan.diagnose",
+    "Capture": "readchan.io.capture",
+    "ConditionSettings": "readchan.frontend.condition",
+    "DecodeSettings": "readchan.channel", "ChannelResult": "readchan.channel", "Read": "readchan.channel",
+    "ChannelReport": "readchan.measure.diagnose", "ReadReport": "readchan.measure.diagnose",
     "ReadchanError": "readchan.errors", "CaptureError": "readchan.errors", "FormatError": "readchan.errors",
     "ParameterError": "readchan.errors", "OutputError": "readchan.errors",
-    "Frame": "readchan.framing",
-    "BitStream": "readchan.timing",
+    "Frame": "readchan.formats.iso7811.framing",
+    "BitStream": "readchan.linecode.f2f",
     "SynthSpec": "readchan.synth", "SynthResult": "readchan.synth", "Impairments": "readchan.synth",
     "SpeedProfile": "readchan.synth",
 }
 
 __all__ = ["load", "decode", "inspect", "synthesize", "__version__", *_LAZY]
-
-
-class _Package(types.ModuleType):
-    """The package's module type: the submodule ``readchan.decode`` (the channel wiring) shares its
-    name with the API function :func:`decode`.  Importing a submodule sets it as an attribute of
-    the package; here the function keeps the name, and the submodule stays importable as
-    ``from readchan.decode import ...`` (it is in ``sys.modules``)."""
-
-    def __setattr__(self, name: str, value: Any) -> None:
-        if name == "decode" and isinstance(value, types.ModuleType):
-            return
-        super().__setattr__(name, value)
-
-
-sys.modules[__name__].__class__ = _Package
 
 
 def __getattr__(name: str) -> Any:
@@ -85,15 +68,15 @@ def load(path: str | Path, *, rate_hz: float | None = None, time_column: bool | 
     """Load a capture from an audio file (WAV, FLAC, AIFF) or a text table (CSV, ...).
 
     ``rate_hz`` (Hz) is needed for a table without a time column; ``time_column`` says whether
-    the first column is time (None: detect it).  See :func:`readchan.capture.load_capture`.
+    the first column is time (None: detect it).  See :func:`readchan.io.capture.load_capture`.
     """
-    from readchan.capture import load_capture
+    from readchan.io.capture import load_capture
 
     return load_capture(path, rate_hz=rate_hz, time_column=time_column)
 
 
 def _capture_of(path_or_capture: Any, rate_hz: float | None) -> "Capture":
-    from readchan.capture import Capture
+    from readchan.io.capture import Capture
     from readchan.errors import ParameterError
 
     if isinstance(path_or_capture, Capture):
@@ -106,7 +89,7 @@ def _capture_of(path_or_capture: Any, rate_hz: float | None) -> "Capture":
 
 
 def _settings_of(settings: "DecodeSettings | None") -> "DecodeSettings":
-    from readchan.decode import DecodeSettings
+    from readchan.channel import DecodeSettings
     from readchan.errors import ParameterError
 
     if settings is None:
@@ -122,9 +105,9 @@ def decode(path_or_capture: "str | Path | Capture", settings: "DecodeSettings | 
 
     ``settings`` defaults to ``DecodeSettings()`` (format, signal kind and track guessed);
     ``rate_hz`` (Hz) is passed to :func:`load` when a path is given.  Returns one
-    :class:`ChannelResult` per channel; see :func:`readchan.decode.decode_capture`.
+    :class:`ChannelResult` per channel; see :func:`readchan.channel.decode_capture`.
     """
-    from readchan.decode import decode_capture
+    from readchan.channel import decode_capture
 
     return decode_capture(_capture_of(path_or_capture, rate_hz), _settings_of(settings), channels=channels)
 
@@ -134,9 +117,9 @@ def inspect(path_or_capture: "str | Path | Capture", settings: "DecodeSettings |
     """Decode and diagnose every channel (or the chosen ``channels``) of a capture or a file.
 
     The arguments are those of :func:`decode`.  Returns one :class:`ChannelReport` per
-    channel; see :func:`readchan.diagnose.inspect_capture`.
+    channel; see :func:`readchan.measure.diagnose.inspect_capture`.
     """
-    from readchan.diagnose import inspect_capture
+    from readchan.measure.diagnose import inspect_capture
 
     return inspect_capture(_capture_of(path_or_capture, rate_hz), _settings_of(settings), channels=channels)
 

@@ -1,3 +1,3 @@
-from readchan.cli import main
+from readchan.cli.main import main
 
 main()

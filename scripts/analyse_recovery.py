@@ -3,7 +3,7 @@
 For each ISO track format (at its maximum length, the worst case: most rectangles), a random
 valid track is encoded, a failing read is made by flipping w bits of the frame (w = 2..4, or
 a burst of two adjacent bits in one character, which keeps that character's parity), every
-framed bit gets a decision margin, and the recovery search of readchan.recover is run.
+framed bit gets a decision margin, and the recovery search of readchan.formats.iso7811.recover is run.
 Counted: reads recovered to the true text, reads left invalid, and false accepts (a valid
 reading whose text is wrong).
 
@@ -22,9 +22,9 @@ import argparse
 
 import numpy as np
 
-from readchan.formats import TRACKS
-from readchan.framing import encode_text, frame
-from readchan.recover import CORRECTION_RANK, MAX_FLIPS, candidate_count, confirm_correction, recover
+from readchan.formats.iso7811.charset import TRACKS
+from readchan.formats.iso7811.framing import encode_text, frame
+from readchan.formats.iso7811.recover import CORRECTION_RANK, MAX_FLIPS, candidate_count, confirm_correction, recover
 
 
 def random_text(track: int, rng: np.random.Generator) -> str:

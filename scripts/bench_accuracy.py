@@ -32,8 +32,8 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 from scipy import signal as sps
 
-from readchan.decode import DecodeSettings, decode_channel
-from readchan.sweep import Scenario, run_trials
+from readchan.channel import DecodeSettings, decode_channel
+from readchan.evaluate.sweep import Scenario, run_trials
 from readchan.synth import Impairments
 
 I = Impairments

@@ -16,9 +16,9 @@ from pathlib import Path
 
 import soundfile as sf
 
-from readchan.capture import load_capture, write_capture
-from readchan.decode import decode_capture
-from readchan.render import reads_of
+from readchan.io.capture import load_capture, write_capture
+from readchan.channel import decode_capture
+from readchan.report.render import reads_of
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 

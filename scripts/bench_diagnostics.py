@@ -22,8 +22,8 @@ import sys
 
 import numpy as np
 
-from readchan.capture import Capture
-from readchan.diagnose import inspect_capture
+from readchan.io.capture import Capture
+from readchan.measure.diagnose import inspect_capture
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 from readchan.synth.chain import FrontEnd

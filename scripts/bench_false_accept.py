@@ -48,10 +48,10 @@ from concurrent.futures import ProcessPoolExecutor
 import numpy as np
 from scipy import signal as sps
 
-from readchan.decode import DecodeSettings, decode_channel
-from readchan.fields import luhn_check_digit
-from readchan.formats import TRACKS
-from readchan.sweep import random_text
+from readchan.channel import DecodeSettings, decode_channel
+from readchan.formats.iso7813 import luhn_check_digit
+from readchan.formats.iso7811.charset import TRACKS
+from readchan.evaluate.sweep import random_text
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, TrackContent, synthesize
 from readchan.synth.card import track_content
 

@@ -28,10 +28,10 @@ from scipy import signal as sps
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from readchan.capture import Capture  # noqa: E402
-from readchan.decode import DecodeSettings, decode_capture  # noqa: E402
-from readchan.formats import TRACKS  # noqa: E402
-from readchan.render import reads_of  # noqa: E402
+from readchan.io.capture import Capture  # noqa: E402
+from readchan.channel import DecodeSettings, decode_capture  # noqa: E402
+from readchan.formats.iso7811.charset import TRACKS  # noqa: E402
+from readchan.report.render import reads_of  # noqa: E402
 from readchan.synth import FrontEnd, Impairments, SpeedProfile, SynthSpec, synthesize  # noqa: E402
 from readchan.synth.card import track_content  # noqa: E402
 from readchan.synth.head import KarlqvistPulse  # noqa: E402

@@ -13,10 +13,11 @@ import argparse
 import statistics
 import time
 
-from readchan.tape import decode_kcs, decode_ltc
-from readchan.tape.playback import Playback, PlaySpeed
-from readchan.tape.synth_kcs import KcsSpec, synthesize_kcs
-from readchan.tape.synth_ltc import LtcSpec, synthesize_ltc
+from readchan.formats.kcs import decode_kcs
+from readchan.formats.ltc import decode_ltc
+from readchan.synth.playback import Playback, PlaySpeed
+from readchan.synth.kcs import KcsSpec, synthesize_kcs
+from readchan.synth.ltc import LtcSpec, synthesize_ltc
 
 
 def _median_s(fn, repeat: int) -> tuple[float, object]:

@@ -36,7 +36,7 @@ ALPHA = "ABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789 /-."
 
 def _random_text(rng: np.random.Generator, track: int) -> str:
     """Invented card-like content (99 prefix: no issuer's range, a Luhn check digit) for one track."""
-    from readchan.fields import luhn_check_digit
+    from readchan.formats.iso7813 import luhn_check_digit
 
     digits = "".join(rng.choice(list("0123456789"), size=int(rng.integers(6, 17))))
     pan = "99" + digits
@@ -94,7 +94,7 @@ def synth_cases(n: int) -> list[dict]:
 
 
 def _capture(case: dict):
-    from readchan.capture import Capture
+    from readchan.io.capture import Capture
     from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
     from readchan.synth.card import track_content
     from readchan.synth.head import KarlqvistPulse, LorentzianPulse
@@ -110,15 +110,15 @@ def _capture(case: dict):
 
 def decode_synth(case: dict) -> list[dict]:
     """The reads of one synthesized case, as ``decode --json --unmask`` renders them."""
-    from readchan.decode import decode_capture
-    from readchan.render import read_dict, reads_of
+    from readchan.channel import decode_capture
+    from readchan.report.render import read_dict, reads_of
 
     return [read_dict(r, unmask=True) for r in reads_of(decode_capture(_capture(case)))]
 
 
 def decode_fixture(path: Path) -> dict:
     """``readchan decode PATH --json --unmask`` run in-process: its exit code and JSON."""
-    from readchan import cli
+    from readchan.cli import main as cli
 
     argv, buf = sys.argv, io.StringIO()
     sys.argv = ["readchan", "decode", str(path), "--json", "--unmask"]

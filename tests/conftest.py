@@ -9,9 +9,9 @@ import sys
 import pytest
 from hypothesis import HealthCheck, settings
 
-from readchan.capture import Capture
-from readchan.decode import DecodeSettings, decode_capture
-from readchan.render import reads_of
+from readchan.io.capture import Capture
+from readchan.channel import DecodeSettings, decode_capture
+from readchan.report.render import reads_of
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 
@@ -66,7 +66,7 @@ def _hypothesis_line(config) -> str:
 
 def run_cli(monkeypatch, capsys, *args):
     """Run the ``readchan`` command line in-process; returns (exit code, stdout, stderr)."""
-    from readchan import cli
+    from readchan.cli import main as cli
 
     monkeypatch.setattr(sys, "argv", ["readchan", *map(str, args)])
     with pytest.raises(SystemExit) as e:

@@ -3,6 +3,7 @@ gives, errors name the parameter, the README's Python examples run, and the impo
 
 from __future__ import annotations
 
+import importlib
 import re
 import subprocess
 import sys
@@ -12,10 +13,10 @@ import numpy as np
 import pytest
 
 import readchan
-from readchan.capture import load_capture
-from readchan.decode import DecodeSettings, decode_capture
-from readchan.diagnose import inspect_capture
-from readchan.render import read_dict, reads_of
+from readchan.io.capture import load_capture
+from readchan.channel import DecodeSettings, decode_capture
+from readchan.measure.diagnose import inspect_capture
+from readchan.report.render import read_dict, reads_of
 from readchan.synth import SpeedProfile, SynthSpec
 from readchan.synth import synthesize as synth_synthesize
 from readchan.synth.card import track_content
@@ -79,7 +80,7 @@ def test_a_table_without_rate_names_the_rate_hz_parameter(tmp_path):
 
 
 def test_the_cli_spells_the_same_error_as_its_option():
-    from readchan.cli import cli_spelling
+    from readchan.cli.main import cli_spelling
 
     assert cli_spelling("x.csv has no time column; pass rate_hz to give the sample rate").endswith(
         "pass --rate-hz to give the sample rate")
@@ -98,11 +99,14 @@ def test_wrong_argument_types_name_the_parameter():
         readchan.synthesize("%HELLO?")
 
 
-def test_the_decode_function_keeps_its_name_after_the_decode_module_is_imported():
-    import readchan.decode  # noqa: F401  (the submodule of the same name)
+def test_the_api_functions_keep_their_names_when_every_submodule_is_imported():
+    import pkgutil
 
-    assert callable(readchan.decode) and readchan.decode.__module__ == "readchan"
-    assert sys.modules["readchan.decode"].decode_capture is decode_capture
+    for info in pkgutil.walk_packages(readchan.__path__, "readchan."):
+        if info.name != "readchan.__main__":
+            importlib.import_module(info.name)
+    for name in ("load", "decode", "inspect", "synthesize"):
+        assert callable(getattr(readchan, name)) and getattr(readchan, name).__module__ == "readchan"
 
 
 def _readme_python_blocks() -> list[str]:

@@ -14,8 +14,8 @@ import numpy as np
 import pytest
 
 from conftest import run_cli as run
-from readchan.atomic import atomic_output, check_output_path
-from readchan.capture import write_capture
+from readchan.io.atomic import atomic_output, check_output_path
+from readchan.io.capture import write_capture
 from readchan.errors import EXIT_BAD_INPUT, CaptureError, OutputError
 
 FIXTURES = Path(__file__).resolve().parent.parent / "fixtures"
@@ -112,7 +112,7 @@ def test_a_signal_during_a_write_removes_the_temporary_file(tmp_path, signame):
 def test_sigterm_during_a_long_write_ends_the_process_and_leaves_nothing(tmp_path):
     target = tmp_path / "long.csv"
     child = subprocess.Popen(
-        [sys.executable, "-c", "import sys, numpy as np; from readchan.capture import write_capture; "
+        [sys.executable, "-c", "import sys, numpy as np; from readchan.io.capture import write_capture; "
                                "write_capture(sys.argv[1], np.zeros(10_000_000), 1e6, kind='csv')", str(target)],
         cwd=ROOT, stderr=subprocess.PIPE)
     try:
@@ -132,7 +132,7 @@ def test_sigterm_during_a_long_write_ends_the_process_and_leaves_nothing(tmp_pat
 
 
 def _sweep_result():
-    from readchan.sweep import StepResult, SweepResult, SweepSpec
+    from readchan.evaluate.sweep import StepResult, SweepResult, SweepSpec
 
     spec = SweepSpec("jitter", (0.0, 0.1), trials=10)
     return SweepResult(spec, (StepResult(0.0, 10, 10, 0, 100, 0), StepResult(0.1, 10, 9, 1, 100, 0)), 48_000.0)
@@ -142,13 +142,13 @@ def _write_with(writer: str, path: Path) -> None:
     if writer == "capture":
         write_capture(path, np.zeros(1000), 48_000)
     elif writer == "inspect-plot":
-        from readchan.capture import load_capture
-        from readchan.diagnose import inspect_capture
-        from readchan.plot import plot_reports
+        from readchan.io.capture import load_capture
+        from readchan.measure.diagnose import inspect_capture
+        from readchan.report.plot import plot_reports
 
         plot_reports(inspect_capture(load_capture(FIXTURES / "track2-scope.csv")), path)
     else:
-        from readchan.sweep import plot_sweep
+        from readchan.evaluate.sweep import plot_sweep
 
         plot_sweep(_sweep_result(), path)
 

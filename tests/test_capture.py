@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from readchan.capture import (
+from readchan.io.capture import (
     MIN_SAMPLES,
     WRITE_KINDS,
     Capture,

@@ -194,7 +194,7 @@ def test_absurd_front_end_parameters_are_refused_naming_the_parameter(fe, name):
 
 def test_synth_command_writes_a_scope_csv_on_the_8_bit_levels_that_decodes(monkeypatch, capsys, tmp_path):
     from conftest import run_cli
-    from readchan.capture import load_capture
+    from readchan.io.capture import load_capture
 
     out = tmp_path / "scope.csv"
     code, _, err = run_cli(monkeypatch, capsys, "synth", out, "--track2", ";1234567890?", "--snr-db", "35",

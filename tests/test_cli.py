@@ -87,7 +87,7 @@ def test_synth_refuses_to_overwrite_without_force(monkeypatch, capsys, tmp_path)
 
 
 def test_an_invalid_read_exits_1(monkeypatch, capsys, tmp_path):
-    from readchan.capture import write_capture
+    from readchan.io.capture import write_capture
     from readchan.synth import SynthSpec, TrackContent, synthesize
     from readchan.synth.card import track_content
 
@@ -177,7 +177,7 @@ def _deny_new_files(monkeypatch):
     import errno
     import os
 
-    from readchan import atomic
+    from readchan.io import atomic
 
     real_open = os.open
 
@@ -242,7 +242,7 @@ def test_python_warnings_reach_the_terminal_as_one_line(monkeypatch, capsys, tmp
 
 
 def test_warnings_of_other_libraries_are_one_line_with_their_category(monkeypatch, capsys):
-    from readchan import cli_decode
+    from readchan.cli import decode as cli_decode
 
     def noisy(*a, **kw):
         np.log(np.zeros(1))                                # numpy: "divide by zero encountered in log"
@@ -361,7 +361,7 @@ def test_sweep_json_carries_a_versioned_schema(monkeypatch, capsys):
 def test_synth_and_sweep_default_to_the_same_speed_profile():
     import typer.main
 
-    from readchan.cli import app
+    from readchan.cli.main import app
 
     group = typer.main.get_command(app)
     defaults = {name: next(p.default for p in group.commands[name].params if p.name == "profile")

@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from scipy import signal as sps
 
-from readchan.condition import baseline, condition, fit_hum, signal_band_hz
-from readchan.decode import between_pulses_mask
-from readchan.detect import detect_head
+from readchan.frontend.condition import baseline, condition, fit_hum, signal_band_hz
+from readchan.channel import between_pulses_mask
+from readchan.frontend.detect import detect_head
 
 RATE = 48_000.0
 

@@ -15,13 +15,13 @@ import numpy as np
 import pytest
 
 from conftest import run_cli as run
-from readchan.capture import Capture, write_capture
-from readchan.decode import DecodeSettings, decode_capture
-from readchan.density import decide_track
-from readchan.diagnose import inspect_capture
+from readchan.io.capture import Capture, write_capture
+from readchan.channel import DecodeSettings, decode_capture
+from readchan.formats.iso7811.density import decide_track
+from readchan.measure.diagnose import inspect_capture
 from readchan.errors import EXIT_BAD_INPUT, EXIT_INVALID, EXIT_NO_DATA, EXIT_VALID
-from readchan.formats import ISO_BCD
-from readchan.framing import encode_text, frame, missing_end
+from readchan.formats.iso7811.charset import ISO_BCD
+from readchan.formats.iso7811.framing import encode_text, frame, missing_end
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, TrackContent, synthesize
 from readchan.synth.card import parse_bits, track_content
 from readchan.synth.chain import FrontEnd
@@ -95,7 +95,7 @@ def test_undecided_evidence_is_reported_as_ambiguous():
 def test_decode_marks_an_ambiguous_track_in_its_table():
     from rich.console import Console
 
-    from readchan.render import decode_table
+    from readchan.report.render import decode_table
     pulse = LorentzianPulse(0.14 * 0.0254 / 210)
     cap, _ = _synth([track_content(SHORT, track=3, leading_zeros=10)], pulse=pulse)
     console = Console(width=200, record=True)

@@ -1,4 +1,4 @@
-"""No false accept under damage the checks cannot see (readchan.evidence, the field check).
+"""No false accept under damage the checks cannot see (readchan.formats.iso7811.evidence, the field check).
 
 Card content is invented (made-up names, account numbers with the made-up prefix 99).
 """
@@ -11,11 +11,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from readchan.decode import DecodeSettings, decode_channel
-from readchan.evidence import boundary_steps, damaged_characters
-from readchan.fields import layout_errors
-from readchan.formats import TRACKS
-from readchan.framing import encode_text, frame
+from readchan.channel import DecodeSettings, decode_channel
+from readchan.formats.iso7811.evidence import boundary_steps, damaged_characters
+from readchan.formats.iso7813 import layout_errors
+from readchan.formats.iso7811.charset import TRACKS
+from readchan.formats.iso7811.framing import encode_text, frame
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 

@@ -1,4 +1,4 @@
-"""Specification of readchan.fields: Luhn, ISO/IEC 7813 layouts, account-number masking.
+"""Specification of readchan.formats.iso7813: Luhn, ISO/IEC 7813 layouts, account-number masking.
 
 Card data here is invented: names are made up and account numbers are invented digits with
 a Luhn check digit appended (they belong to no issuer).
@@ -15,7 +15,7 @@ from hypothesis import strategies as st
 from stdnum import luhn
 
 from readchan.errors import ParameterError
-from readchan.fields import (
+from readchan.formats.iso7813 import (
     CardFields,
     luhn_check_digit,
     luhn_valid,

@@ -1,4 +1,4 @@
-"""Specification of readchan.formats: ISO character sets, track layouts, user formats."""
+"""Specification of readchan.formats.iso7811.charset: ISO character sets, track layouts, user formats."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from readchan.errors import FormatError
-from readchan.formats import (
+from readchan.formats.iso7811.charset import (
     ISO_ALPHA,
     ISO_BCD,
     KNOWN_FORMATS,

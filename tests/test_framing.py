@@ -1,4 +1,4 @@
-"""Specification of readchan.framing: encoding, framing both ways, LRC and correction."""
+"""Specification of readchan.formats.iso7811.framing: encoding, framing both ways, LRC and correction."""
 
 from __future__ import annotations
 
@@ -8,8 +8,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from readchan.errors import FormatError, ParameterError
-from readchan.formats import ISO_ALPHA, ISO_BCD, TRACKS, parse_format
-from readchan.framing import encode_text, frame, frame_auto, lrc_code
+from readchan.formats.iso7811.charset import ISO_ALPHA, ISO_BCD, TRACKS, parse_format
+from readchan.formats.iso7811.framing import encode_text, frame, frame_auto, lrc_code
 
 SETTINGS = settings(max_examples=60, deadline=None)
 

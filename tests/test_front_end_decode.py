@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 from scipy import signal as sps
 
-from readchan.capture import Capture
-from readchan.detect import detect_head
+from readchan.io.capture import Capture
+from readchan.frontend.detect import detect_head
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 from readchan.synth.head import KarlqvistPulse
@@ -69,7 +69,7 @@ def test_ringing_lobes_between_pulses_are_not_detected_however_many_there_are(n_
 
 
 def test_quantisation_step_is_found_on_a_scope_grid_and_not_on_float_samples():
-    from readchan.detect import quantisation_step
+    from readchan.frontend.detect import quantisation_step
     from readchan.synth.chain import FrontEnd, quantise
 
     rng = np.random.default_rng(3)
@@ -97,7 +97,7 @@ def test_noise_finer_than_a_quantisation_step_gives_no_transitions():
 
 def test_clipping_on_one_rail_only_is_recognised():
     # A baseline offset ahead of the clipper brings one polarity to its rail alone.
-    from readchan.detect import clipped_fraction
+    from readchan.frontend.detect import clipped_fraction
 
     x, _ = _pulses_with_ringing(0)
     assert clipped_fraction(x) < 0.005
@@ -105,7 +105,7 @@ def test_clipping_on_one_rail_only_is_recognised():
 
 
 def test_a_flat_crest_is_timed_at_its_middle_even_when_its_extreme_sample_is_at_one_end():
-    from readchan.detect import level_midpoint_times
+    from readchan.frontend.detect import level_midpoint_times
 
     t = np.arange(200, dtype=float)
     x = np.exp(-0.5 * ((t - 100) / 6.0) ** 2) - np.exp(-0.5 * ((t - 80) / 3.0) ** 2) \

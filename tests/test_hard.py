@@ -14,11 +14,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from readchan.capture import Capture
-from readchan.decode import decode_channel
-from readchan.formats import TRACKS
-from readchan.framing import frame
-from readchan.recover import confirm_correction, recover
+from readchan.io.capture import Capture
+from readchan.channel import decode_channel
+from readchan.formats.iso7811.charset import TRACKS
+from readchan.formats.iso7811.framing import frame
+from readchan.formats.iso7811.recover import confirm_correction, recover
 from readchan.synth import Impairments, SpeedProfile
 from readchan.synth.card import track_content
 from readchan.synth.head import LorentzianPulse

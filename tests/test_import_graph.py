@@ -110,8 +110,8 @@ def test_module_level_imports_form_no_cycle():
 
 def test_graph_lists_function_level_imports_too():
     graph = import_graph()
-    assert graph["readchan"]["readchan.capture"] is False        # load() imports it when called
-    assert graph["readchan.decode"]["readchan.capture"] is True
+    assert graph["readchan"]["readchan.io.capture"] is False        # load() imports it when called
+    assert graph["readchan.channel"]["readchan.io.capture"] is True
 
 
 def test_cycle_finder_sees_a_loop_and_passes_a_tree():

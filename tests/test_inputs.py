@@ -16,13 +16,13 @@ import pytest
 import soundfile as sf
 
 from conftest import run_cli, synth_capture
-from readchan.capture import (MAX_SAMPLES, RATE_RANGE_HZ, Capture, NonPhysicalSampleWarning, TruncatedCaptureWarning,
+from readchan.io.capture import (MAX_SAMPLES, RATE_RANGE_HZ, Capture, NonPhysicalSampleWarning, TruncatedCaptureWarning,
                               check_output_path, display_path, load_capture, repair_outliers, write_capture)
-from readchan.condition import ConditionSettings
-from readchan.decode import DecodeSettings, decode_capture, decode_channel
+from readchan.frontend.condition import ConditionSettings
+from readchan.channel import DecodeSettings, decode_capture, decode_channel
 from readchan.errors import CaptureError, FormatError, ParameterError
-from readchan.formats import parse_format
-from readchan.render import reads_of
+from readchan.formats.iso7811.charset import parse_format
+from readchan.report.render import reads_of
 from readchan.synth import (SAMPLE_LIMIT, Impairments, SpeedProfile, SynthSpec, estimate_samples, synthesize)
 from readchan.synth.card import track_content
 from readchan.synth.head import KarlqvistPulse, LorentzianPulse
@@ -80,7 +80,7 @@ def test_flac_claiming_2_to_the_36_samples_decodes_from_the_command_line(tmp_pat
 
 
 def test_audio_over_the_sample_limit_is_refused_before_it_is_read(tmp_path, monkeypatch):
-    import readchan.capture as capture
+    import readchan.io.capture as capture
 
     path = tmp_path / "long.wav"
     sf.write(path, np.zeros(5000), 48000, subtype="PCM_16")
@@ -426,7 +426,7 @@ def test_a_channel_of_white_noise_or_a_constant_is_reported_as_no_activity_witho
 @pytest.mark.parametrize("track, text", [(1, TEXT), (2, ";9912345678901239=29121010000000000?")])
 def test_a_weak_swipe_in_a_long_noise_capture_is_not_taken_for_noise(track, text):
     # 6 dB SNR, below where decoding fails (README, Benchmarks): the swipe still raises the RMS
-    from readchan.decode import only_white_noise
+    from readchan.channel import only_white_noise
 
     for seed in range(3):
         cap, _ = synth_capture({track: text}, imp=Impairments(snr_db=6.0), seed=seed, lead_s=1.0)
@@ -434,7 +434,7 @@ def test_a_weak_swipe_in_a_long_noise_capture_is_not_taken_for_noise(track, text
 
 
 def test_band_limited_noise_is_decoded_in_full_not_called_white():
-    from readchan.decode import only_white_noise
+    from readchan.channel import only_white_noise
 
     x = np.convolve(np.random.default_rng(2).normal(size=20_000), np.ones(4) / 4, "same")
     assert not only_white_noise(x, 48_000.0)

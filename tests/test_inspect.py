@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 
 from conftest import run_cli as run
-from readchan.capture import Capture, write_capture
-from readchan.diagnose import inspect_capture, isolated_pw50_cell
+from readchan.io.capture import Capture, write_capture
+from readchan.measure.diagnose import inspect_capture, isolated_pw50_cell
 from readchan.errors import EXIT_BAD_INPUT, EXIT_INVALID, EXIT_NO_DATA, EXIT_VALID
 from readchan.synth import Impairments, SpeedProfile
 from readchan.synth.head import LorentzianPulse
@@ -269,7 +269,7 @@ def test_plot_is_written_with_five_panels_per_read(monkeypatch, capsys, tmp_path
 
 
 def test_plot_of_a_channel_without_data_has_one_panel(tmp_path):
-    from readchan.plot import plot_reports
+    from readchan.report.plot import plot_reports
     rng = np.random.default_rng(0)
     cap = Capture(0.01 * rng.standard_normal((24000, 1)), 48000.0, source="<noise>", units="FS")
     assert plot_reports(inspect_capture(cap), tmp_path / "empty.png") == 1

@@ -14,10 +14,10 @@ import numpy as np
 import pytest
 
 from readchan.errors import ParameterError
-from readchan.tape import decode_kcs, kcs_json
-from readchan.tape.kcs import kcs_bits
-from readchan.tape.playback import Playback, PlaySpeed
-from readchan.tape.synth_kcs import KcsSpec, synthesize_kcs
+from readchan.formats.kcs import decode_kcs, kcs_json
+from readchan.formats.kcs import kcs_bits
+from readchan.synth.playback import Playback, PlaySpeed
+from readchan.synth.kcs import KcsSpec, synthesize_kcs
 
 RATE_HZ = 48_000.0
 DATA = bytes(range(256))

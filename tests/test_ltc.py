@@ -13,12 +13,12 @@ import numpy as np
 import pytest
 
 from readchan.errors import CaptureError, ParameterError
-from readchan.tape import decode_ltc, ltc_json
-from readchan.tape.biphase import bits_from_transitions, biphase_positions
-from readchan.tape.ltc import read_from_bits
-from readchan.tape.ltc_word import FrameWord, Label, encode_word
-from readchan.tape.playback import Playback, PlaySpeed
-from readchan.tape.synth_ltc import LtcEdit, LtcSpec, UserBits, synthesize_ltc
+from readchan.formats.ltc import decode_ltc, ltc_json
+from readchan.linecode.biphase import bits_from_transitions, biphase_positions
+from readchan.formats.ltc.read import read_from_bits
+from readchan.formats.ltc.word import FrameWord, Label, encode_word
+from readchan.synth.playback import Playback, PlaySpeed
+from readchan.synth.ltc import LtcEdit, LtcSpec, UserBits, synthesize_ltc
 
 
 def roundtrip(**kw):

@@ -12,7 +12,7 @@ import pytest
 from timecode import Timecode
 
 from readchan.errors import FormatError
-from readchan.tape.ltc_word import (SYNC_REVERSED, SYNC_WORD, FrameWord, Label, bcd_valid, count_to_label,
+from readchan.formats.ltc.word import (SYNC_REVERSED, SYNC_WORD, FrameWord, Label, bcd_valid, count_to_label,
                                     decode_word, encode_word, frames_per_day, label_to_count, zeros_even)
 
 # 01:23:45:13 at 25 fps, no flags, user bits 0, worked by hand from the bit table of SMPTE ST 12-1

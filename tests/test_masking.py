@@ -16,10 +16,10 @@ import pytest
 import soundfile as sf
 
 from conftest import run_cli as run
-from readchan.capture import Capture
-from readchan.diagnose import inspect_capture
-from readchan.formats import TRACKS
-from readchan.plot import report_figure
+from readchan.io.capture import Capture
+from readchan.measure.diagnose import inspect_capture
+from readchan.formats.iso7811.charset import TRACKS
+from readchan.report.plot import report_figure
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, TrackContent, synthesize
 from readchan.synth.card import track_content
 
@@ -117,8 +117,8 @@ def test_plots_draw_no_pulse_or_interval_inside_a_masked_character(captures, dam
     # interval is a 1) as surely as a bit label does, in a vector file most of all
     import matplotlib.lines
 
-    from readchan.fields import mask_text
-    from readchan.plot import masked_spans
+    from readchan.formats.iso7813 import mask_text
+    from readchan.report.plot import masked_spans
 
     _, cap = captures[damaged]
     reports = inspect_capture(cap)

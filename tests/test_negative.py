@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from readchan.decode import decode_channel
+from readchan.channel import decode_channel
 from readchan.synth.head import LorentzianPulse
 
 RATES = (44_100.0, 48_000.0, 96_000.0, 192_000.0)

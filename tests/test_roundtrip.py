@@ -12,7 +12,7 @@ from __future__ import annotations
 from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
-from readchan.formats import TRACKS
+from readchan.formats.iso7811.charset import TRACKS
 from readchan.synth import FrontEnd, Impairments, SpeedProfile
 
 from conftest import PROFILE, decode_reads, synth_capture

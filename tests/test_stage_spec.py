@@ -12,9 +12,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from readchan.detect import FLAG_MISSING, FLAG_WEAK, detect_head
-from readchan.segment import segment
-from readchan.timing import recover_bits
+from readchan.frontend.detect import FLAG_MISSING, FLAG_WEAK, detect_head
+from readchan.frontend.segment import segment
+from readchan.linecode.f2f import recover_bits
 
 RATE_HZ = 48_000.0
 

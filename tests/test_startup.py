@@ -17,10 +17,10 @@ def _loaded_after(statement: str, modules: tuple[str, ...]) -> list[str]:
 
 
 def test_importing_the_cli_loads_no_numerical_or_plotting_library():
-    assert _loaded_after("import readchan.cli", ("matplotlib", "numpy", "scipy", "soundfile", "readchan.diagnose")) == []
+    assert _loaded_after("import readchan.cli.main", ("matplotlib", "numpy", "scipy", "soundfile", "readchan.measure.diagnose")) == []
 
 
 def test_cli_help_loads_no_plotting_library():
-    statement = ("sys.argv = ['readchan', '--help']\nimport readchan.cli as c\n"
+    statement = ("sys.argv = ['readchan', '--help']\nimport readchan.cli.main as c\n"
                  "try:\n    c.main()\nexcept SystemExit:\n    pass")
     assert _loaded_after(statement, ("matplotlib",)) == []

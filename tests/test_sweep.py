@@ -9,10 +9,10 @@ import pytest
 
 from conftest import run_cli as run
 from readchan.errors import EXIT_BAD_INPUT, ParameterError
-from readchan.formats import TRACKS
-from readchan.sweep import (Scenario, StepResult, SweepResult, SweepSpec, edit_distance, run_sweep, run_trial,
+from readchan.formats.iso7811.charset import TRACKS
+from readchan.evaluate.sweep import (Scenario, StepResult, SweepResult, SweepSpec, edit_distance, run_sweep, run_trial,
                             synthesize_trial, true_period_at)
-from readchan.sweep import _score
+from readchan.evaluate.sweep import _score
 
 # short track-2 content keeps every trial to a few milliseconds
 QUICK = Scenario(track=2, n_chars=8)

@@ -8,7 +8,7 @@ from scipy.optimize import brentq
 
 from readchan.errors import ParameterError
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, TrackContent, synthesize
-from readchan.synth.f2f import f2f_positions
+from readchan.linecode.f2f import f2f_positions
 from readchan.synth.head import KarlqvistPulse, LorentzianPulse, PulseModel, gap_loss, spacing_loss_db
 
 

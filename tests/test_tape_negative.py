@@ -12,9 +12,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from readchan.tape import decode_kcs, decode_ltc
-from readchan.tape.biphase import biphase_positions
-from readchan.tape.ltc_word import SYNC_REVERSED, SYNC_WORD
+from readchan.formats.kcs import decode_kcs
+from readchan.formats.ltc import decode_ltc
+from readchan.linecode.biphase import biphase_positions
+from readchan.formats.ltc.word import SYNC_REVERSED, SYNC_WORD
 
 RATE_HZ = 48_000.0
 
@@ -105,8 +106,8 @@ def test_card_swipe_gives_no_tape_read(channel):
 
 
 def test_cassette_capture_gives_no_timecode_and_timecode_gives_no_bytes():
-    from readchan.tape.synth_kcs import KcsSpec, synthesize_kcs
-    from readchan.tape.synth_ltc import LtcSpec, synthesize_ltc
+    from readchan.synth.kcs import KcsSpec, synthesize_kcs
+    from readchan.synth.ltc import LtcSpec, synthesize_ltc
 
     for baud in (300, 1200):
         kcs = synthesize_kcs(KcsSpec(data=bytes(range(200)), baud=baud))

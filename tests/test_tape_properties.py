@@ -9,16 +9,17 @@ from hypothesis import example, given
 from hypothesis import strategies as st
 
 from readchan.synth.head import LorentzianPulse
-from readchan.tape import decode_kcs, decode_ltc
-from readchan.tape.ltc_word import count_to_label, frames_per_day, labels_per_second
-from readchan.tape.playback import Playback, PlaySpeed
-from readchan.tape.synth_kcs import KcsSpec, synthesize_kcs
-from readchan.tape.synth_ltc import LtcSpec, UserBits, synthesize_ltc
+from readchan.formats.kcs import decode_kcs
+from readchan.formats.ltc import decode_ltc
+from readchan.formats.ltc.word import count_to_label, frames_per_day, labels_per_second
+from readchan.synth.playback import Playback, PlaySpeed
+from readchan.synth.kcs import KcsSpec, synthesize_kcs
+from readchan.synth.ltc import LtcSpec, UserBits, synthesize_ltc
 
 
 def peak_jitter_s(spec: LtcSpec, speed: float) -> float:
     """RMS timing error (s) that white noise gives a head pulse peak timed by a parabola through
-    three samples (readchan.detect._parabolic_times), for a frame played at ``speed``.
+    three samples (readchan.frontend.detect._parabolic_times), for a frame played at ``speed``.
 
     The peak is where V' = 0; the parabola's offset 0.5·(x₋ − x₊)/(x₋ − 2x₀ + x₊) is the
     central-difference slope over the curvature, so noise of RMS σ_n moves it by

@@ -13,11 +13,11 @@ import numpy as np
 import pytest
 
 from readchan.errors import ParameterError
-from readchan.tape.biphase import biphase_positions, bits_from_transitions, period_anchors
-from readchan.tape.ltc_word import WORD_BITS
-from readchan.tape.playback import Playback, PlaySpeed
-from readchan.tape.synth_kcs import KcsSpec, synthesize_kcs
-from readchan.tape.synth_ltc import LtcEdit, LtcSpec, synthesize_ltc
+from readchan.linecode.biphase import biphase_positions, bits_from_transitions, period_anchors
+from readchan.formats.ltc.word import WORD_BITS
+from readchan.synth.playback import Playback, PlaySpeed
+from readchan.synth.kcs import KcsSpec, synthesize_kcs
+from readchan.synth.ltc import LtcEdit, LtcSpec, synthesize_ltc
 
 
 def test_biphase_positions_have_a_boundary_per_cell_and_a_mid_cell_per_one():

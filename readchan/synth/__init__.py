@@ -33,7 +33,7 @@ from scipy import signal as sps
 
 from readchan.errors import ParameterError
 from readchan.synth.chain import FrontEnd, filter_chain, quantise
-from readchan.synth.f2f import f2f_positions
+from readchan.linecode.f2f import f2f_positions
 from readchan.synth.head import KarlqvistPulse, LorentzianPulse, PulseModel
 from readchan.synth.speed import SpeedProfile
 from readchan.units import bit_cell_m

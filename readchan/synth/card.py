@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 
 from readchan.errors import FormatError
-from readchan.formats import TRACKS, CharFormat
-from readchan.framing import encode_text
+from readchan.formats.iso7811.charset import TRACKS, CharFormat
+from readchan.formats.iso7811.framing import encode_text
 from readchan.synth import TrackContent
 
 
@@ -25,7 +25,7 @@ def track_content(text: str | None = None, *, track: int = 1, fmt: CharFormat | 
     added as needed) or raw bits, clocking zeros; at the track's ISO density unless given.
 
     ISO/IEC 7811-2 densities: tracks 1 and 3 at 210 bpi, track 2 at 75 bpi.  The clocking
-    zero counts default to the track's (see :data:`readchan.formats.TRACKS`).
+    zero counts default to the track's (see :data:`readchan.formats.iso7811.charset.TRACKS`).
     """
     spec = TRACKS[track]
     f = fmt or spec.fmt

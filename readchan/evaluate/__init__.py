@@ -1,0 +1,1 @@
+"""Evaluation: parameter sweeps of the synthesizer through the read channel (:mod:`.sweep`)."""
