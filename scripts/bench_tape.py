@@ -13,7 +13,7 @@ import argparse
 import statistics
 import time
 
-from readchan.formats.kcs import decode_kcs
+from readchan.formats.kcs.read import decode_kcs
 from readchan.formats.ltc import decode_ltc
 from readchan.synth.playback import Playback, PlaySpeed
 from readchan.synth.kcs import KcsSpec, synthesize_kcs

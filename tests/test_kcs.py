@@ -14,8 +14,8 @@ import numpy as np
 import pytest
 
 from readchan.errors import ParameterError
-from readchan.formats.kcs import decode_kcs, kcs_json
-from readchan.formats.kcs import kcs_bits
+from readchan.formats.kcs.read import decode_kcs, kcs_json
+from readchan.formats.kcs.read import kcs_bits
 from readchan.synth.playback import Playback, PlaySpeed
 from readchan.synth.kcs import KcsSpec, synthesize_kcs
 

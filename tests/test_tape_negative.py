@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from readchan.formats.kcs import decode_kcs
+from readchan.formats.kcs.read import decode_kcs
 from readchan.formats.ltc import decode_ltc
 from readchan.linecode.biphase import biphase_positions
 from readchan.formats.ltc.word import SYNC_REVERSED, SYNC_WORD

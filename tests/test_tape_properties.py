@@ -9,7 +9,7 @@ from hypothesis import example, given
 from hypothesis import strategies as st
 
 from readchan.synth.head import LorentzianPulse
-from readchan.formats.kcs import decode_kcs
+from readchan.formats.kcs.read import decode_kcs
 from readchan.formats.ltc import decode_ltc
 from readchan.formats.ltc.word import count_to_label, frames_per_day, labels_per_second
 from readchan.synth.playback import Playback, PlaySpeed

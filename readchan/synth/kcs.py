@@ -5,7 +5,7 @@ playback impairments, seed).
 Output: :class:`KcsSynth` – samples (1-D float64), rate, and each byte's start-bit time.
 
 Model: the recording is a sequence of tone segments in tape time – quiet, a leader of mark,
-then per byte 11 bits (:func:`readchan.formats.kcs.kcs_bits`), each 1/baud long at 2400 Hz
+then per byte 11 bits (:func:`readchan.formats.kcs.read.kcs_bits`), each 1/baud long at 2400 Hz
 (mark, 1) or 1200 Hz (space, 0) (BYTE, Feb. 1976), with ``idle_bits`` of mark (whole or
 fractional bits) after each byte, then a trailer of mark.  The tone is phase-continuous,
 starting at ``bit_phase_deg``; after a fractional idle gap the next bit begins away from a
@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from readchan.errors import ParameterError
-from readchan.formats.kcs import BAUDS, BYTE_BITS, MARK_HZ, SPACE_HZ, kcs_bits
+from readchan.formats.kcs.read import BAUDS, BYTE_BITS, MARK_HZ, SPACE_HZ, kcs_bits
 from readchan.synth.playback import Playback, PlaySpeed
 
 SHAPES = ("sine", "square")

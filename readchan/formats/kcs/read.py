@@ -216,6 +216,11 @@ class KcsRead:
     leader_s: float
     dropouts: tuple[tuple[float, float], ...] = ()
 
+    @property
+    def direction(self) -> str:
+        """Always ``forward``: the decoder reads the tape in capture order."""
+        return "forward"
+
 
 def _leader_s(track: ToneTrack, t: float, min_s: float) -> float:
     """Length of nearly unbroken mark ending at ``t`` (checked in ``min_s`` steps back), seconds."""
