@@ -136,8 +136,6 @@ def _settings(fmt: str, kind: Kind | str, track: Optional[int], notch: str, lowp
               highpass_hz: float, field_check: bool = True):
     from readchan.frontend.condition import ConditionSettings
     from readchan.channel import DecodeSettings
-    from readchan.formats.iso7811.charset import parse_format
-
     if notch not in ("auto", "off"):
         try:
             notch_v: str | float = float(notch)
@@ -146,8 +144,31 @@ def _settings(fmt: str, kind: Kind | str, track: Optional[int], notch: str, lowp
     else:
         notch_v = notch
     cs = ConditionSettings(highpass_hz=highpass_hz or None, lowpass_hz=lowpass_hz)
-    return DecodeSettings(fmt=parse_format(fmt), kind=Kind(kind).value, track=track, condition=cs, notch=notch_v,
-                          field_check=field_check)
+    char_format, name = _format_of(fmt)
+    return DecodeSettings(fmt=char_format, kind=Kind(kind).value, track=track, condition=cs, notch=notch_v,
+                          field_check=field_check, format=name)
+
+
+def _format_of(spec: str):
+    """(card character format or None, registry name) for ``--format``: a registered format by
+    name (a tape format gives no character format), else a card format string
+    (:func:`readchan.formats.iso7811.charset.parse_format`: track names, ``custom:...``)."""
+    from readchan.errors import FormatError
+    from readchan.formats.iso7811.charset import parse_format
+    from readchan.formats.registry import all_formats
+
+    named = {f.name: f for f in all_formats()}
+    key = spec.strip().lower() if isinstance(spec, str) else spec
+    if key in named:
+        f = named[key]
+        return f.char_format, ("auto" if f.char_format is not None else f.name)
+    try:
+        return parse_format(spec), "auto"
+    except FormatError as e:
+        if str(e).startswith("unknown format"):
+            tape = ", ".join(n for n, f in named.items() if f.char_format is None)
+            raise FormatError(f"{e}; or a registered format: {tape}") from None
+        raise
 
 
 def _channels(channel: Optional[list[int]]):
@@ -157,7 +178,8 @@ def _channels(channel: Optional[list[int]]):
 # Options shared by the commands that decode (decode, inspect).
 CAPTURES = typer.Argument(..., help="Capture files: WAV/FLAC/AIFF audio or CSV.")
 FORMAT = typer.Option("auto", "--format", "-f",
-                      help="Character format: auto, iso-alpha, iso-bcd, track1..3, or custom:bits=..,parity=..,...")
+                      help="Format: auto (try every registered format), iso-alpha, iso-bcd, track1..3, ltc (timecode), "
+                           "kcs (cassette data), or a card format custom:bits=..,parity=..,...")
 CHANNEL = typer.Option(None, "--channel", "-c", help="Channel(s) to read, from 0 (default all).")
 SIGNAL = typer.Option(Kind.auto, "--signal", help="Signal the capture holds: head pulses, logic-level edges, "
                                                     "or auto-detect.")

@@ -37,12 +37,25 @@ def verdict_keys(r: Read, *, unmask: bool = False) -> dict:
 
 
 def read_dict(r: Read, *, unmask: bool = False) -> dict:
-    """One read as a JSON-ready dict (stable keys; see the README)."""
+    """One read of any format as a JSON-ready dict, rendered by its registered format (stable
+    keys; see the README)."""
+    from readchan.formats.registry import read_json
+
+    return read_json(r, unmask=unmask)
+
+
+def card_reads(reads: list[Read]) -> list[Read]:
+    """The card reads among ``reads`` (their payload has a frame)."""
+    return [r for r in reads if hasattr(r.payload, "frame")]
+
+
+def card_read_json(r: Read, unmask: bool = False) -> dict:
+    """A card read as a JSON-ready dict (the card format's renderer in the registry)."""
     f = r.frame
     return {
         "source": r.source,
         "channel": r.channel,
-        "format": f.format,
+        "format": r.format,
         "track": r.track.number if r.track else None,
         **track_keys(r),
         "direction": f.direction,
@@ -88,6 +101,7 @@ def channel_dict(ch: ChannelResult, source: str = "") -> dict:
         "source": source,
         "channel": ch.channel,
         "kind": ch.kind,
+        "family": ch.family,
         "transitions": len(ch.transitions),
         "reads": len(ch.reads),
         "state": None if st is None else st.state,
@@ -219,10 +233,13 @@ def track_lines(reads: list[Read]) -> list[Text]:
 def print_decode(console: Console, source: str, results: list[ChannelResult], *, unmask: bool = False) -> None:
     """Every channel of one capture: the reads' table, characters, tracks and fields, and a
     line for each channel that gave no read."""
-    reads = reads_of(results)
-    if not reads:
+    from readchan.report.tape import print_tape_reads
+
+    every = reads_of(results)
+    reads = card_reads(every)
+    if not every:
         console.print(Text(source, style="bold"))
-    else:
+    elif reads:
         console.print(decode_table(reads, unmask=unmask, title=source))
         for line in text_lines(reads, unmask=unmask):
             console.print(line, soft_wrap=True)
@@ -230,5 +247,6 @@ def print_decode(console: Console, source: str, results: list[ChannelResult], *,
             console.print(line, soft_wrap=True)
         for line in field_lines(reads, unmask=unmask):
             console.print(line, soft_wrap=True)
+    print_tape_reads(console, source, [r for r in every if not hasattr(r.payload, "frame")])
     for line in no_read_lines(source, results):
         console.print(line, soft_wrap=True)
