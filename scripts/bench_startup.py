@@ -27,7 +27,7 @@ def wall_s() -> float:
 def import_s() -> float:
     err = subprocess.run([sys.executable, "-X", "importtime", "-m", "readchan", "--help"], cwd=ROOT,
                          capture_output=True, text=True, check=True).stderr
-    us = [int(m.group(1)) for m in re.finditer(r"^import time:\s+\d+ \|\s+(\d+) \| readchan\.cli$", err, re.M)]
+    us = [int(m.group(1)) for m in re.finditer(r"^import time:\s+\d+ \|\s+(\d+) \| readchan\.cli\.main$", err, re.M)]
     return us[0] / 1e6
 
 
