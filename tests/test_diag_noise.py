@@ -17,7 +17,8 @@ import numpy as np
 import pytest
 
 from readchan.io.capture import Capture
-from readchan.measure.diagnose import inspect_capture, robust_noise
+from readchan.measure.diagnose import inspect_capture
+from readchan.measure.noise import robust_noise
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 from readchan.synth.chain import FrontEnd

@@ -16,7 +16,8 @@ import pytest
 
 from conftest import run_cli as run
 from readchan.io.capture import Capture, write_capture
-from readchan.measure.diagnose import inspect_capture, isolated_pw50_cell
+from readchan.measure.diagnose import inspect_capture
+from readchan.measure.pulse import isolated_pw50_cell
 from readchan.errors import EXIT_BAD_INPUT, EXIT_INVALID, EXIT_NO_DATA, EXIT_VALID
 from readchan.synth import Impairments, SpeedProfile
 from readchan.synth.head import LorentzianPulse

@@ -13,7 +13,8 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from readchan.measure.diagnose import ChannelReport, ReadReport, noise_source_text
+from readchan.measure.diagnose import ChannelReport, ReadReport
+from readchan.measure.front_end import noise_source_text
 from readchan.formats.iso7813 import mask_text
 from readchan.report.render import track_keys, verdict_keys
 

@@ -24,7 +24,8 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from readchan.measure.diagnose import LIMITS, ChannelReport, ReadReport
+from readchan.measure.diagnose import ChannelReport, ReadReport
+from readchan.measure.verdict import LIMITS
 from readchan.errors import ParameterError
 from readchan.formats.iso7813 import mask_text
 from readchan.linecode.f2f import BOUNDARY

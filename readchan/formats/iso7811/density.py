@@ -135,10 +135,10 @@ def clocking_pw50_cell(w: np.ndarray, rate_hz: float, idx: np.ndarray, sign: np.
     ``period_s`` the bit period at each transition.  Pulses with full cells on both sides, two
     deep, are resampled on a grid of ±0.5 cell around their peaks (linear interpolation),
     sign-corrected and averaged; the half-amplitude width of the mean is corrected for its
-    neighbours' tails (:func:`readchan.measure.diagnose.isolated_pw50_cell`, Lorentzian train).
+    neighbours' tails (:func:`readchan.measure.pulse.isolated_pw50_cell`, Lorentzian train).
     None with fewer than 8 such pulses.
     """
-    from readchan.measure.diagnose import PULSE_GRID, _half_width, isolated_pw50_cell
+    from readchan.measure.pulse import PULSE_GRID, half_width, isolated_pw50_cell
 
     full = ratio >= 0.75
     j = np.arange(2, ratio.size - 1)
@@ -152,7 +152,7 @@ def clocking_pw50_cell(w: np.ndarray, rate_hz: float, idx: np.ndarray, sign: np.
         return None
     pos, sg = pos[ok], sign[j][ok]
     pulses = np.interp(pos.ravel(), np.arange(w.size), w).reshape(pos.shape) * sg[:, None]
-    width = _half_width(PULSE_GRID, pulses.mean(axis=0))
+    width = half_width(PULSE_GRID, pulses.mean(axis=0))
     return isolated_pw50_cell(width) if math.isfinite(width) else None
 
 
