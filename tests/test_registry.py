@@ -172,3 +172,16 @@ def test_decode_channel_keeps_the_outliers_it_repaired_whichever_family_reads():
 def test_a_negative_capture_gives_no_valid_read_of_any_format(name):
     cap = Capture(NEGATIVES[name]()[:, None], RATE_HZ, source=f"<{name}>", units="FS")
     assert not any(r.valid for r in _reads(cap))
+
+
+def test_a_read_survives_pickling_for_process_pools():
+    import pickle
+
+    from readchan.io.capture import load_capture
+
+    from pathlib import Path
+
+    (read, *_) = _reads(load_capture(Path(__file__).resolve().parents[1] / "fixtures" / "three-track-swipe.wav"))
+    again = pickle.loads(pickle.dumps(read))
+    assert (again.format, again.valid, again.frame.text, len(again.bits)) == \
+        (read.format, read.valid, read.frame.text, len(read.bits))

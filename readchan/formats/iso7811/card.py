@@ -239,28 +239,35 @@ def reads_from(tr: Transitions, segs: list[Segment] | tuple[Segment, ...], setti
         if not _clocked(bs.bits, fr, MIN_CLOCKING_ZEROS):
             skip("few-zeros", seg, bs, zeros=leading_zeros(bs.bits, int(fr.bit_index[0, 0]), fr.direction))
             continue
-        recovery = None
         fmt = settings.fmt or next(f for f in formats if f.name == fr.format)
-        # only a corrected or failed read needs to know where the detector guessed
-        suspects = suspect_bits(sub, bs) if fr.corrected or not fr.valid else ()
-        if fr.corrected:
-            fr = confirm_correction(fr, bs.bits, bs.margin, fmt, suspects)
-        if not fr.valid and settings.recover:
-            recovery = recover(bs.bits, bs.margin, fr, fmt, suspect_bits=suspects)
-            if recovery.frame is not None:
-                fr = recovery.frame
-        track = guess_track(fr.format, len(fr.text), channel, n_channels, settings.track)
-        speed = mean_speed_cm_s(bs, track.density_bpi) if track else None
-        # track 3 follows ISO 4909, whose fields readchan does not interpret
-        fields = parse_fields(fr.text, fr.format) if not (track and track.number == 3) else None
-        rejected, damaged = None, ()
-        if fr.valid:
-            damaged = damaged_characters(fr, damage_evidence(sub, bs, clipped=clipped), fr.corrected)
-            if len(damaged) > MAX_DAMAGED_CHARS:
-                rejected = "suspect"
-        card = CardRead(fr, fields, track, speed, recovery, rejected=rejected, damaged_chars=damaged)
-        reads.append(Read(source, channel, fr.format, card, seg, sub, bs))
+        card = _checked(fr, fmt, sub, bs, settings, channel=channel, n_channels=n_channels, clipped=clipped)
+        reads.append(Read(source, channel, card.frame.format, card, seg, sub, bs))
     return tuple(reads)
+
+
+def _checked(fr: Frame, fmt: CharFormat, sub: Transitions, bs: BitStream, settings: "CardSettings", *,
+             channel: int, n_channels: int, clipped: bool) -> CardRead:
+    """A framed segment's card payload: the correction confirmed or the recovery searched, the
+    track guessed, the fields parsed and the physical evidence judged (:func:`reads_from`)."""
+    recovery = None
+    # only a corrected or failed read needs to know where the detector guessed
+    suspects = suspect_bits(sub, bs) if fr.corrected or not fr.valid else ()
+    if fr.corrected:
+        fr = confirm_correction(fr, bs.bits, bs.margin, fmt, suspects)
+    if not fr.valid and settings.recover:
+        recovery = recover(bs.bits, bs.margin, fr, fmt, suspect_bits=suspects)
+        if recovery.frame is not None:
+            fr = recovery.frame
+    track = guess_track(fr.format, len(fr.text), channel, n_channels, settings.track)
+    speed = mean_speed_cm_s(bs, track.density_bpi) if track else None
+    # track 3 follows ISO 4909, whose fields readchan does not interpret
+    fields = parse_fields(fr.text, fr.format) if not (track and track.number == 3) else None
+    rejected, damaged = None, ()
+    if fr.valid:
+        damaged = damaged_characters(fr, damage_evidence(sub, bs, clipped=clipped), fr.corrected)
+        if len(damaged) > MAX_DAMAGED_CHARS:
+            rejected = "suspect"
+    return CardRead(fr, fields, track, speed, recovery, rejected=rejected, damaged_chars=damaged)
 
 
 def decode_card_channel(x: np.ndarray, rate_hz: float, settings: "CardSettings", *, kind: str, channel: int = 0,
