@@ -16,7 +16,8 @@ from pathlib import Path
 
 import soundfile as sf
 
-from readchan.io.capture import load_capture, write_capture
+from readchan.io.capture import load_capture
+from readchan.io.write import write_capture
 from readchan.channel import decode_capture
 from readchan.report.render import reads_of
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize

@@ -8,7 +8,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from readchan.io.capture import write_capture
+from readchan.io.write import write_capture
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
 from readchan.synth.card import track_content
 

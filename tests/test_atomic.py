@@ -15,7 +15,7 @@ import pytest
 
 from conftest import run_cli as run
 from readchan.io.atomic import atomic_output, check_output_path
-from readchan.io.capture import write_capture
+from readchan.io.write import write_capture
 from readchan.errors import EXIT_BAD_INPUT, CaptureError, OutputError
 
 FIXTURES = Path(__file__).resolve().parent.parent / "fixtures"
@@ -112,7 +112,7 @@ def test_a_signal_during_a_write_removes_the_temporary_file(tmp_path, signame):
 def test_sigterm_during_a_long_write_ends_the_process_and_leaves_nothing(tmp_path):
     target = tmp_path / "long.csv"
     child = subprocess.Popen(
-        [sys.executable, "-c", "import sys, numpy as np; from readchan.io.capture import write_capture; "
+        [sys.executable, "-c", "import sys, numpy as np; from readchan.io.write import write_capture; "
                                "write_capture(sys.argv[1], np.zeros(10_000_000), 1e6, kind='csv')", str(target)],
         cwd=ROOT, stderr=subprocess.PIPE)
     try:

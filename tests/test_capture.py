@@ -9,15 +9,10 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from readchan.io.capture import (
-    MIN_SAMPLES,
-    WRITE_KINDS,
-    Capture,
-    ClippingWarning,
-    TruncatedCaptureWarning,
-    load_capture,
-    write_capture,
-)
+from readchan.io.audio import TruncatedCaptureWarning
+from readchan.io.capture import Capture, load_capture
+from readchan.io.checks import MIN_SAMPLES
+from readchan.io.write import WRITE_KINDS, ClippingWarning, write_capture
 from readchan.errors import CaptureError, ParameterError
 
 RATE = 48_000

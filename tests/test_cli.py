@@ -87,7 +87,7 @@ def test_synth_refuses_to_overwrite_without_force(monkeypatch, capsys, tmp_path)
 
 
 def test_an_invalid_read_exits_1(monkeypatch, capsys, tmp_path):
-    from readchan.io.capture import write_capture
+    from readchan.io.write import write_capture
     from readchan.synth import SynthSpec, TrackContent, synthesize
     from readchan.synth.card import track_content
 

@@ -160,7 +160,8 @@ def test_card_edge_pulse_is_half_a_transition():
 
 def test_eight_bit_scope_csv_file_with_a_pre_trigger_stretch(tmp_path):
     # the same through a CSV file (volts as the scope exported them, a time column)
-    from readchan.io.capture import load_capture, write_capture
+    from readchan.io.capture import load_capture
+    from readchan.io.write import write_capture
     cap, truth, _ = front_end_capture(2, T2, snr_db=40.0, scope_v_div=0.2, lead_s=0.03, seed=13)
     path = write_capture(tmp_path / "scope.csv", cap.samples, cap.rate_hz, kind="csv")
     fe, r = _read(load_capture(path))

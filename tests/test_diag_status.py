@@ -15,7 +15,8 @@ import numpy as np
 import pytest
 
 from conftest import run_cli as run
-from readchan.io.capture import Capture, write_capture
+from readchan.io.capture import Capture
+from readchan.io.write import write_capture
 from readchan.channel import DecodeSettings, decode_capture
 from readchan.formats.iso7811.density import decide_track
 from readchan.measure.diagnose import inspect_capture

@@ -16,8 +16,10 @@ import pytest
 import soundfile as sf
 
 from conftest import run_cli, synth_capture
-from readchan.io.capture import (MAX_SAMPLES, RATE_RANGE_HZ, Capture, NonPhysicalSampleWarning, TruncatedCaptureWarning,
-                              check_output_path, display_path, load_capture, repair_outliers, write_capture)
+from readchan.io.audio import TruncatedCaptureWarning
+from readchan.io.capture import Capture, NonPhysicalSampleWarning, load_capture, repair_outliers
+from readchan.io.checks import MAX_SAMPLES, RATE_RANGE_HZ, display_path
+from readchan.io.write import check_output_path, write_capture
 from readchan.frontend.condition import ConditionSettings
 from readchan.channel import DecodeSettings, decode_capture, decode_channel
 from readchan.errors import CaptureError, FormatError, ParameterError
@@ -80,11 +82,11 @@ def test_flac_claiming_2_to_the_36_samples_decodes_from_the_command_line(tmp_pat
 
 
 def test_audio_over_the_sample_limit_is_refused_before_it_is_read(tmp_path, monkeypatch):
-    import readchan.io.capture as capture
+    import readchan.io.audio as audio
 
     path = tmp_path / "long.wav"
     sf.write(path, np.zeros(5000), 48000, subtype="PCM_16")
-    monkeypatch.setattr(capture, "MAX_SAMPLES", 1000)
+    monkeypatch.setattr(audio, "MAX_SAMPLES", 1000)
     with pytest.raises(CaptureError, match="more than 1,000 sample values"):
         load_capture(path)
     assert MAX_SAMPLES == 250_000_000

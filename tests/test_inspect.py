@@ -15,7 +15,8 @@ import numpy as np
 import pytest
 
 from conftest import run_cli as run
-from readchan.io.capture import Capture, write_capture
+from readchan.io.capture import Capture
+from readchan.io.write import write_capture
 from readchan.measure.diagnose import inspect_capture
 from readchan.measure.pulse import isolated_pw50_cell
 from readchan.errors import EXIT_BAD_INPUT, EXIT_INVALID, EXIT_NO_DATA, EXIT_VALID

@@ -42,7 +42,7 @@ def _one_line(text: str) -> str:
 
 
 def _fail(error: ErrorType, source: str, problem: str) -> ReadchanError:
-    from readchan.io.capture import display_path     # bytes that are not UTF-8 shown as escapes
+    from readchan.io.checks import display_path     # bytes that are not UTF-8 shown as escapes
 
     return error(_one_line(f"{display_path(source)}: {problem}"))
 
@@ -62,7 +62,7 @@ def _name_limits(directory: Path) -> tuple[int, int]:
 def check_path_length(path: str | os.PathLike, *, error: ErrorType = OutputError) -> None:
     """Raise ``error`` unless each component of ``path`` is within the file system's name limit
     (``NAME_MAX``, 255 bytes on most) and the whole within ``PATH_MAX``."""
-    from readchan.io.capture import display_path
+    from readchan.io.checks import display_path
 
     target = Path(path)
     shown = display_path(path)
