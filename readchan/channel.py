@@ -143,15 +143,9 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
             first = result
             break
         first = first or result
-        if _no_activity(first):
-            break                   # nothing above the noise: no other family reads it either
+        if first.front_end is not None and first.front_end.silent:
+            break                   # white noise or constant: no other family reads it either
     return replace(first, outliers=outliers)
-
-
-def _no_activity(result: ChannelResult) -> bool:
-    """The channel holds no activity (:mod:`readchan.measure.status`: too few pulses above the
-    noise, or stationary white noise), so no other family is tried on it."""
-    return result.status is not None and result.status.state == "no-activity"
 
 
 def decode_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),

@@ -9,9 +9,15 @@ multi-track captures and the flux (logic-level) output.  A restructuring of the 
 leave these outputs identical; a key added to a read is allowed (the comparison checks that
 every recorded key is still there with the same value).
 
+A second set, ``tests/golden/tape.json``, holds seeded tape captures (timecode at crawl to
+shuttle speeds, both directions, line level and raw head, edits and splices, noise, hum and the
+playback band; cassette data at both baud rates with speed offsets, wow and flutter, idle bits
+and dropouts), decoded with no ``--format`` as ``decode --json`` renders them.
+
 Usage:
     python scripts/golden.py record [--out tests/golden/decode.json] [--cases 220]
-    python scripts/golden.py check  [--golden tests/golden/decode.json]
+    python scripts/golden.py record-tape [--out tests/golden/tape.json] [--cases 40]
+    python scripts/golden.py check  [--golden tests/golden/decode.json] [--tape tests/golden/tape.json]
 """
 
 from __future__ import annotations
@@ -27,6 +33,7 @@ import numpy as np
 
 ROOT = Path(__file__).resolve().parents[1]
 GOLDEN = ROOT / "tests" / "golden" / "decode.json"
+TAPE_GOLDEN = ROOT / "tests" / "golden" / "tape.json"
 FIXTURES = ROOT / "fixtures"
 CAPTURE_SUFFIXES = (".wav", ".flac", ".aiff", ".csv")
 FLOAT_TOLERANCE = 2e-6
@@ -116,6 +123,82 @@ def decode_synth(case: dict) -> list[dict]:
     return [read_dict(r, unmask=True) for r in reads_of(decode_capture(_capture(case)))]
 
 
+def tape_cases(n: int) -> list[dict]:
+    """The seeded tape case list (plain dicts): timecode and cassette captures, alternating."""
+    rng = np.random.default_rng(20261203)
+    cases = []
+    for i in range(n):
+        play = {}
+        if rng.random() < 0.5:
+            play["snr_db"] = round(float(rng.uniform(25, 45)), 1)
+        if rng.random() < 0.2:
+            play["hum_level"] = round(float(rng.uniform(0.02, 0.2)), 3)
+        if rng.random() < 0.2:
+            play["band_hz"] = [300.0, 3500.0] if i % 2 else [50.0, 15000.0]
+        if rng.random() < 0.2:
+            play["invert"] = True
+        base = {"id": f"tape-{i:03d}", "seed": int(rng.integers(0, 2**31)), "playback": play}
+        wow = {"wow_depth": round(float(rng.uniform(0, 0.01)), 4), "wow_hz": 0.5,
+               "flutter_depth": round(float(rng.uniform(0, 0.003)), 4), "flutter_hz": 12.0}
+        if i % 2 == 0:
+            speed = str(rng.choice(["constant", "slow", "ramp", "shuttle"]))
+            rate_fps = float(rng.choice([24.0, 25.0, 29.97, 30.0]))
+            edit = None
+            if rng.random() < 0.3:
+                edit = {"at_frame": int(rng.integers(3, 12)), "kind": str(rng.choice(["jump", "splice", "repeat"])),
+                        "to": "02:10:00:00"}
+            cases.append({**base, "format": "ltc", "rate_fps": rate_fps,
+                          "start": f"{int(rng.integers(0, 24)):02d}:{int(rng.integers(0, 60)):02d}:"
+                                   f"{int(rng.integers(0, 60)):02d}{';' if rate_fps == 29.97 else ':'}10",
+                          "speed": speed, "reverse": bool(rng.random() < 0.3),
+                          "signal": str(rng.choice(["line", "head"], p=[0.7, 0.3])), "edit": edit, "wow": wow})
+        else:
+            cases.append({**base, "format": "kcs", "baud": int(rng.choice([300, 1200])),
+                          "data": rng.integers(0, 256, int(rng.integers(4, 40))).astype(np.uint8).tobytes().hex(),
+                          "speed_factor": round(float(rng.uniform(0.9, 1.1)), 3),
+                          "idle_bits": round(float(rng.choice([0.0, 0.5, 2.0])), 1), "wow": wow,
+                          "dropout": bool(rng.random() < 0.2)})
+    return cases
+
+
+def _tape_capture(case: dict):
+    from readchan.io.capture import Capture
+    from readchan.synth.kcs import KcsSpec, synthesize_kcs
+    from readchan.synth.ltc import LtcEdit, LtcSpec, synthesize_ltc
+    from readchan.synth.playback import Playback, PlaySpeed
+
+    play = dict(case["playback"])
+    if "band_hz" in play:
+        play["band_hz"] = tuple(play["band_hz"])
+    if case["format"] == "ltc":
+        w = case["wow"]
+        speed = {"constant": PlaySpeed.constant(1.0, **w), "slow": PlaySpeed.constant(0.3, **w),
+                 "ramp": PlaySpeed.ramp(0.2, 1.0, 0.6, **w), "shuttle": PlaySpeed.shuttle(1.0, 6.0, 0.3, 0.2, **w)}
+        edits = (LtcEdit(**case["edit"]),) if case["edit"] else ()
+        rate_hz = 192_000.0 if case["speed"] == "shuttle" else 48_000.0
+        s = synthesize_ltc(LtcSpec(start=case["start"], rate_fps=case["rate_fps"], duration_s=1.2,
+                                   speed=speed[case["speed"]], direction="reverse" if case["reverse"] else "forward",
+                                   signal=case["signal"], edits=edits, playback=Playback(**play), rate_hz=rate_hz,
+                                   seed=case["seed"]))
+    else:
+        if case["dropout"]:
+            play["dropouts"] = ((0.3, 0.02, 30.0),)
+        s = synthesize_kcs(KcsSpec(data=bytes.fromhex(case["data"]), baud=case["baud"], idle_bits=case["idle_bits"],
+                                   speed=PlaySpeed.constant(case["speed_factor"], **case["wow"]),
+                                   playback=Playback(**play), seed=case["seed"]))
+    x = s.samples if s.samples.ndim == 2 else s.samples[:, None]
+    return Capture(x, s.rate_hz, source=case["id"], units="FS")
+
+
+def decode_tape(case: dict) -> dict:
+    """One tape case as ``decode --json`` renders it (no ``--format``): reads and channel families."""
+    from readchan.channel import decode_capture
+    from readchan.report.render import read_dict, reads_of
+
+    results = decode_capture(_tape_capture(case))
+    return {"reads": [read_dict(r) for r in reads_of(results)], "families": [ch.family for ch in results]}
+
+
 def decode_fixture(path: Path) -> dict:
     """``readchan decode PATH --json --unmask`` run in-process: its exit code and JSON."""
     from readchan.cli import main as cli
@@ -177,9 +260,13 @@ def _portable(doc):
     return doc
 
 
-def check(golden: Path) -> list[str]:
+def check(golden: Path, tape: Path | None = None) -> list[str]:
     data = json.loads(golden.read_text())
     out = []
+    if tape is not None:
+        rec = json.loads(tape.read_text())
+        for case in rec["cases"]:
+            out += differences(rec["tape"][case["id"]], decode_tape(case), case["id"])
     for name, rec in data["fixtures"].items():
         out += differences(_portable(rec), _portable(decode_fixture(FIXTURES / name)), f"fixture {name}")
     for case in data["cases"]:
@@ -193,9 +280,19 @@ def main() -> int:
     r = sub.add_parser("record")
     r.add_argument("--out", type=Path, default=GOLDEN)
     r.add_argument("--cases", type=int, default=220)
+    t = sub.add_parser("record-tape")
+    t.add_argument("--out", type=Path, default=TAPE_GOLDEN)
+    t.add_argument("--cases", type=int, default=40)
     c = sub.add_parser("check")
     c.add_argument("--golden", type=Path, default=GOLDEN)
+    c.add_argument("--tape", type=Path, default=TAPE_GOLDEN)
     a = ap.parse_args()
+    if a.cmd == "record-tape":
+        cases = tape_cases(a.cases)
+        data = {"cases": cases, "tape": {c["id"]: decode_tape(c) for c in cases}}
+        a.out.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n")
+        print(f"recorded {len(cases)} tape cases ({sum(len(v['reads']) for v in data['tape'].values())} reads) in {a.out}")
+        return 0
     if a.cmd == "record":
         data = record(a.cases)
         a.out.parent.mkdir(parents=True, exist_ok=True)
@@ -204,7 +301,7 @@ def main() -> int:
         print(f"recorded {len(data['fixtures'])} fixtures and {len(data['cases'])} synthesized cases "
               f"({n_reads} reads) in {a.out}")
         return 0
-    diffs = check(a.golden)
+    diffs = check(a.golden, a.tape)
     for d in diffs[:50]:
         print(d)
     print(f"{len(diffs)} differences")

@@ -47,3 +47,20 @@ def test_comparison_holds_in_any_checkout_but_sees_a_changed_file_name():
     renamed = {"reads": [{"source": "/one/checkout/fixtures/b.wav", "text": "%A?"}]}
     assert golden.differences(golden._portable(rec), golden._portable(moved)) == []
     assert golden.differences(golden._portable(rec), golden._portable(renamed))
+
+
+def test_every_recorded_tape_capture_is_read_by_its_own_family_only():
+    data = json.loads(golden.TAPE_GOLDEN.read_text())
+    assert len(data["cases"]) >= 40
+    family = {"ltc": "timecode", "kcs": "cassette"}
+    for case in data["cases"]:
+        rec = data["tape"][case["id"]]
+        assert rec["families"] == [family[case["format"]]], case["id"]
+        assert [r["format"] for r in rec["reads"]] == [case["format"]], case["id"]
+
+
+def test_tape_decoder_gives_the_recorded_answers():
+    rec = json.loads(golden.TAPE_GOLDEN.read_text())
+    diffs = [d for case in rec["cases"]
+             for d in golden.differences(rec["tape"][case["id"]], golden.decode_tape(case), case["id"])]
+    assert not diffs, "\n".join(diffs[:20])

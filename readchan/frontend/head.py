@@ -47,6 +47,8 @@ class FrontEndRecord:
     lowpass_hz, highpass_hz : the corners of the refinement matched to the pulses, Hz, or None.
     quant_step : the converter step found in the samples (0 when none), capture units.
     clipped : more than :data:`CLIPPED_FRACTION` of the samples sit at the extremes.
+    silent : the channel is stationary white noise or constant (:func:`only_white_noise`):
+        nothing above its noise, so nothing was detected.
     """
 
     kind: str
@@ -58,6 +60,7 @@ class FrontEndRecord:
     highpass_hz: float | None = None
     quant_step: float = 0.0
     clipped: bool = False
+    silent: bool = False
 
 
 LOWPASS_PER_WIDTH = 0.5

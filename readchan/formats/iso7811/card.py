@@ -290,6 +290,7 @@ def decode_card_channel(x: np.ndarray, rate_hz: float, settings: "CardSettings",
         z = np.zeros(0)
         tr = Transitions(z, np.zeros(0, np.int64), z, z, np.zeros(0, np.uint8), float(rate_hz), "head",
                          float(np.std(x)))
+        record = FrontEndRecord(kind, silent=True)
     else:
         cond, tr, record = head_front_end(x, rate_hz, settings, channel)
     segs = segment(tr)
