@@ -24,7 +24,6 @@ import json
 import os
 import sys
 import time
-from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
 from rich.console import Console
@@ -33,7 +32,9 @@ from rich.table import Table
 from scipy import signal as sps
 
 from readchan.channel import DecodeSettings, decode_channel
-from readchan.evaluate.sweep import Scenario, run_trials
+from readchan.evaluate.runner import run_jobs
+from readchan.evaluate.scenario import Scenario
+from readchan.evaluate.trial import run_trials
 from readchan.synth import Impairments
 
 I = Impairments
@@ -103,10 +104,6 @@ def noise_trial(seed: int, k: int) -> int:
     return sum(r.valid for r in cr.reads)
 
 
-def _noise_chunk(seed: int, ks: list[int]) -> list[int]:
-    return [noise_trial(seed, k) for k in ks]
-
-
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--trials", type=int, default=150, help="trials per grid cell (default 150)")
@@ -131,13 +128,9 @@ def main(argv: list[str] | None = None) -> int:
         noise_hits = 0
         if args.noise:
             ntask = bar.add_task("noise captures", total=args.noise)
-            ks = list(range(args.noise))
-            size = max(1, -(-len(ks) // (8 * workers)))
-            chunks = [ks[a:a + size] for a in range(0, len(ks), size)]
-            with ProcessPoolExecutor(max_workers=workers) as pool:
-                for chunk, hits in zip(chunks, pool.map(_noise_chunk, [args.seed] * len(chunks), chunks)):
-                    noise_hits += sum(hits)
-                    bar.advance(ntask, len(chunk))
+            hits = run_jobs(noise_trial, range(args.noise), shared=(args.seed,), workers=workers,
+                            progress=lambda d, t: bar.update(ntask, completed=d))
+            noise_hits = sum(hits)
     elapsed = time.perf_counter() - t0
 
     rows = []

@@ -43,7 +43,6 @@ import json
 import os
 import sys
 import time
-from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
 from scipy import signal as sps
@@ -51,7 +50,8 @@ from scipy import signal as sps
 from readchan.channel import DecodeSettings, decode_channel
 from readchan.formats.iso7813 import luhn_check_digit
 from readchan.formats.iso7811.charset import TRACKS
-from readchan.evaluate.sweep import random_text
+from readchan.evaluate.runner import run_jobs
+from readchan.evaluate.scenario import random_text
 from readchan.synth import Impairments, SpeedProfile, SynthSpec, TrackContent, synthesize
 from readchan.synth.card import track_content
 
@@ -229,8 +229,9 @@ def trial(seed: int, ki: int, k: int, field_check: bool = True) -> tuple[int, in
     return ok, int(not valid), fa
 
 
-def _chunk(seed: int, jobs: list[tuple[int, int]]) -> list[tuple[int, int, tuple[int, int, int]]]:
-    return [(ki, k, trial(seed, ki, k)) for ki, k in jobs]
+def _job(seed: int, job: tuple[int, int]) -> tuple[int, int, tuple[int, int, int]]:
+    ki, k = job
+    return ki, k, trial(seed, ki, k)
 
 
 def run(trials: int, seed: int = 0, workers: int = 1, kinds: tuple[str, ...] = KINDS) -> dict:
@@ -238,13 +239,7 @@ def run(trials: int, seed: int = 0, workers: int = 1, kinds: tuple[str, ...] = K
     jobs = [(KINDS.index(name), k) for name in kinds for k in range(trials)]
     tally = {name: [0, 0, 0] for name in kinds}
     cases = []
-    if workers == 1:
-        done = _chunk(seed, jobs)
-    else:
-        size = max(1, -(-len(jobs) // (8 * workers)))
-        chunks = [jobs[a:a + size] for a in range(0, len(jobs), size)]
-        with ProcessPoolExecutor(max_workers=workers) as pool:
-            done = [d for part in pool.map(_chunk, [seed] * len(chunks), chunks) for d in part]
+    done = run_jobs(_job, jobs, shared=(seed,), workers=workers)
     for ki, k, r in done:
         row = tally[KINDS[ki]]
         for j in range(3):

@@ -12,7 +12,7 @@ from readchan.errors import EXIT_BAD_INPUT, ParameterError
 from readchan.formats.iso7811.charset import TRACKS
 from readchan.evaluate.sweep import (Scenario, StepResult, SweepResult, SweepSpec, edit_distance, run_sweep, run_trial,
                             synthesize_trial, true_period_at)
-from readchan.evaluate.sweep import _score
+from readchan.evaluate.trial import _score
 
 # short track-2 content keeps every trial to a few milliseconds
 QUICK = Scenario(track=2, n_chars=8)

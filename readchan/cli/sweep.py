@@ -59,7 +59,7 @@ def _values(text: Optional[str], start: Optional[float], stop: Optional[float], 
 
 
 def _step_table(result) -> Table:
-    from readchan.evaluate.sweep import SUCCESS_TARGET
+    from readchan.evaluate.trial import SUCCESS_TARGET
 
     spec = result.spec
     fail = result.first_failing_step
@@ -81,6 +81,32 @@ def _step_table(result) -> Table:
                   Text(str(s.false_accepts), style="bold red" if s.false_accepts else ""),
                   mark)
     return t
+
+
+def _base_scenario(track: int, speed_cm_s: float, profile: str, variation: Optional[float],
+                   pw50_cell: Optional[float], impairments, rate_hz: Optional[float], demo: bool,
+                   chars: Optional[int]):
+    """The sweep's base scenario from the command's options (``--demo``: the track's invented text)."""
+    from readchan.evaluate.scenario import DEMO_TEXTS, Scenario
+
+    return Scenario(track=track, speed_cm_s=speed_cm_s, profile=profile, variation=variation or 0.0,
+                    pw50_cell=pw50_cell, impairments=impairments, rate_hz=rate_hz,
+                    text=DEMO_TEXTS[track] if demo else None, n_chars=chars)
+
+
+def _print_result(result, as_json: bool) -> None:
+    """The sweep's result on stdout: one JSON object, or the step table and where success falls."""
+    if as_json:
+        print(json.dumps({"schema": schema("sweep"), **result.to_dict()}, indent=2))
+        return
+    spec = result.spec
+    out.print(_step_table(result))
+    i = result.first_failing_step
+    if i is None:
+        out.print(f"success stays at or above 99 % over the whole sweep ({result.rate_hz:g} Hz sampling)")
+    else:
+        out.print(f"success falls below 99 % at step {i}: {_cli_name(spec.parameter)} = {result.steps[i].value:g} "
+                  f"{spec.unit}")
 
 
 @app.command()
@@ -118,8 +144,9 @@ def sweep(
     force: bool = typer.Option(False, help="Overwrite the --plot file if it exists (a regular file only)."),
 ) -> None:
     """Sweep one impairment: success, character errors and false accepts per step; where it drops below 99 %."""
+    from readchan.evaluate.plot import check_plot_path, plot_sweep
+    from readchan.evaluate.sweep import SweepSpec, run_sweep
     from readchan.synth import Impairments
-    from readchan.evaluate.sweep import DEMO_TEXTS, Scenario, SweepSpec, check_plot_path, plot_sweep, run_sweep
 
     name = _swept(parameter)
     given = {"snr_db": snr_db, "jitter": jitter, "variation": variation, "pw50_cell": pw50_cell,
@@ -132,9 +159,7 @@ def sweep(
         check_plot_path(plot, force=force)   # fail before the work, not after
     imp = Impairments(density_error=density_error, jitter=jitter or 0.0, snr_db=snr_db, hum_hz=hum_hz,
                       hum_level=hum_level or 0.0, clip=clip, invert=invert, reverse=reverse)
-    base = Scenario(track=track, speed_cm_s=speed_cm_s, profile=profile.value, variation=variation or 0.0,
-                    pw50_cell=pw50_cell, impairments=imp, rate_hz=rate_hz,
-                    text=DEMO_TEXTS[track] if demo else None, n_chars=chars)
+    base = _base_scenario(track, speed_cm_s, profile.value, variation, pw50_cell, imp, rate_hz, demo, chars)
     spec = SweepSpec(name, _values(values, start, stop, steps), base=base, trials=trials, seed=seed)
 
     columns = (TextColumn("sweeping {task.description}"), BarColumn(), MofNCompleteColumn(),
@@ -144,16 +169,7 @@ def sweep(
         result = run_sweep(spec, workers=workers, progress=lambda done, total: bar.update(task, completed=done))
 
     # The results first: a plot that cannot be written must not cost the trials.
-    if as_json:
-        print(json.dumps({"schema": schema("sweep"), **result.to_dict()}, indent=2))
-    else:
-        out.print(_step_table(result))
-        i = result.first_failing_step
-        if i is None:
-            out.print(f"success stays at or above 99 % over the whole sweep ({result.rate_hz:g} Hz sampling)")
-        else:
-            out.print(f"success falls below 99 % at step {i}: {_cli_name(name)} = {result.steps[i].value:g} "
-                      f"{spec.unit}")
+    _print_result(result, as_json)
     if plot is not None:
         sys.stdout.flush()
         plot_sweep(result, plot, force=force)
