@@ -20,9 +20,10 @@ For each capture the script prints, from ``--repeat`` fresh processes each (medi
   process, imports done, so any compilation or cache load counts) and warm (a second decode in
   the same process), samples per second, and the ratio to the reference;
 * peak RSS of the decoding process (``resource.getrusage``, ``ru_maxrss``);
-* passes: the fresh memory the decode touches, in full-length float64 arrays (minor page faults
-  × page size / 8 bytes per sample: arrays of this size are fresh ``mmap`` pages every time, so
-  this counts the full-length arrays written), and the decode time in full-length passes (warm
+* passes: the fresh memory the decode writes, in full-length float64 arrays (minor page faults
+  × page size / 8 bytes per sample, in one more untimed process with numpy's huge pages off so
+  that every fault is one 4 kB page: arrays this large are fresh ``mmap`` pages every time, so
+  this counts the full-length arrays made), and the decode time in full-length passes (warm
   time over the time of one ``np.multiply(x, 2.0, out=y)`` over the whole capture);
 * the reads found against the swipes synthesized.
 
@@ -129,16 +130,26 @@ def _decode(path: str):
     return decode_capture(load_capture(path))
 
 
+def worker_count(path: str) -> dict:
+    """One decode with numpy's huge pages off, counting the fresh 4 kB pages it writes."""
+    import numpy as np
+
+    from readchan.channel import decode_capture  # noqa: F401
+
+    np._core.multiarray._set_madvise_hugepage(False)
+    f0 = _faults()
+    _decode(path)
+    return {"fresh_bytes": (_faults() - f0) * resource.getpagesize()}
+
+
 def worker_decode(path: str) -> dict:
     """Cold (first) and warm (second) decode of ``path`` in this fresh process."""
     import readchan.channel  # noqa: F401  (imports are not part of the decode)
     import readchan.io.capture  # noqa: F401
 
-    f0 = _faults()
     t0 = time.perf_counter()
     results = _decode(path)
     cold = time.perf_counter() - t0
-    faults = _faults() - f0
     rss_cold = _rss_mb()
     t0 = time.perf_counter()
     results = _decode(path)
@@ -146,7 +157,7 @@ def worker_decode(path: str) -> dict:
     reads = [r for res in results for r in res.reads]
     good = sum(1 for r in reads if r.valid and r.frame.text == T1)
     return {"cold_s": cold, "warm_s": warm, "rss_mb": _rss_mb(), "rss_cold_mb": rss_cold,
-            "fresh_bytes": faults * resource.getpagesize(), "reads": len(reads), "good": good}
+            "reads": len(reads), "good": good}
 
 
 def _run_worker(kind: str, path: Path, env: dict) -> dict:
@@ -170,6 +181,7 @@ def measure(name: str, path: Path, n: int, swipes: int, repeat: int, env: dict, 
         if cache_root is not None:               # an empty compilation cache for every decode
             env = dict(env, NUMBA_CACHE_DIR=str(cache_root / f"{name}-{i}"))
         decs.append(_run_worker("decode", path, env))
+    fresh = _run_worker("count", path, env)["fresh_bytes"]
     med = lambda rows, key: statistics.median(r[key] for r in rows)   # noqa: E731
     ref, cold, warm = med(refs, "ref_s"), med(decs, "cold_s"), med(decs, "warm_s")
     return {"capture": name, "samples": n, "seconds": n / RATE_HZ, "swipes": swipes,
@@ -178,8 +190,8 @@ def measure(name: str, path: Path, n: int, swipes: int, repeat: int, env: dict, 
             "ref_rss_mb": med(refs, "rss_mb"), "cold_s": cold, "warm_s": warm,
             "msps_warm": n / warm / 1e6, "msps_cold": n / cold / 1e6,
             "ratio_warm": warm / ref, "ratio_cold": cold / ref,
-            "rss_mb": max(r["rss_mb"] for r in decs), "rss_mb_median": med(decs, "rss_mb"),
-            "fresh_arrays": med(decs, "fresh_bytes") / (8.0 * n), "time_passes": warm / med(refs, "pass_s"),
+            "rss_mb": max(r["rss_mb"] for r in decs), "rss_cold_mb": med(decs, "rss_cold_mb"), "rss_mb_median": med(decs, "rss_mb"),
+            "fresh_arrays": fresh / (8.0 * n), "time_passes": warm / med(refs, "pass_s"),
             "cold_all": [round(r["cold_s"], 3) for r in decs], "warm_all": [round(r["warm_s"], 3) for r in decs],
             "ref_all": [round(r["ref_s"], 3) for r in refs]}
 
@@ -210,7 +222,8 @@ def main() -> None:
     args = ap.parse_args()
     if args.worker:
         kind, path = args.worker
-        print(json.dumps(worker_reference(path) if kind == "reference" else worker_decode(path)))
+        workers = {"reference": worker_reference, "decode": worker_decode, "count": worker_count}
+        print(json.dumps(workers[kind](path)))
         return
     if args.repeat < 1 or args.minutes <= 0 or args.long_minutes <= 0:
         raise SystemExit("--repeat must be at least 1 and the lengths positive")
