@@ -30,6 +30,8 @@ import numpy as np
 from scipy import signal as sps
 from scipy.ndimage import maximum_filter1d, median_filter, percentile_filter
 
+from readchan._compiled import kernel
+
 FLAG_EXTRA = np.uint8(1)
 """A same-polarity neighbour of this transition was dropped as a noise peak."""
 FLAG_WEAK = np.uint8(2)
@@ -220,27 +222,44 @@ def _alternate(x, idx, sgn, amp, env, strong, threshold):
         return idx[S].astype(np.int64), env[S], flags
     d = np.diff(idx[S]).astype(float)
     interval = median_filter(d, size=min(9, d.size), mode="nearest")
-    keep = np.ones(S.size, bool)
-    extra: list[tuple[int, float, int]] = []       # (candidate, envelope, flag) to add
-    for k in same.tolist():
-        a, b = int(S[k]), int(S[k + 1])
+    keep, flags, extra, extra_env, extra_flag = _alternation_cases(S, same, idx, sgn, amp, env, interval,
+                                                                   float(threshold))
+    cand = np.concatenate((S[keep], extra))
+    envs = np.concatenate((env[S][keep], extra_env))
+    fl = np.concatenate((flags[keep], extra_flag))
+    order = np.argsort(cand, kind="stable")
+    return idx[cand[order]].astype(np.int64), envs[order], fl[order]
+
+
+@kernel
+def _alternation_cases(S, same, idx, sgn, amp, env, interval, threshold):
+    """The cases of :func:`_alternate`, one at a time: the strong candidates kept, their flags,
+    and the weak candidates rescued (candidate, envelope, flag)."""
+    keep = np.ones(S.size, np.bool_)
+    flags = np.zeros(S.size, np.uint8)
+    extra = np.empty(same.size, np.int64)
+    extra_env = np.empty(same.size)
+    n_extra = 0
+    for k in same:
+        a, b = S[k], S[k + 1]
         if not keep[k]:
             continue
-        between = np.arange(a + 1, b)
-        between = between[sgn[between] != sgn[a]]
-        if between.size and amp[between].max() > 0.5 * threshold * env[b]:
-            extra.append((int(between[np.argmax(amp[between])]), float(env[b]), int(FLAG_WEAK)))
+        best, best_amp = -1, 0.0
+        for c in range(a + 1, b):          # the largest candidate of the opposite polarity between
+            if sgn[c] != sgn[a] and (best < 0 or amp[c] > best_amp):
+                best, best_amp = c, amp[c]
+        if best >= 0 and best_amp > 0.5 * threshold * env[b]:
+            extra[n_extra] = best
+            extra_env[n_extra] = env[b]
+            n_extra += 1
         elif idx[b] - idx[a] < 0.6 * interval[k]:
             drop = k if amp[b] > amp[a] else k + 1
             keep[drop] = False
-            flags[k if drop == k + 1 else k + 1] |= FLAG_EXTRA
+            flags[k if drop == k + 1 else k + 1] |= 1            # FLAG_EXTRA
         else:
-            flags[k + 1] |= FLAG_MISSING
-    cand = np.concatenate((S[keep], np.asarray([e[0] for e in extra], np.int64)))
-    envs = np.concatenate((env[S][keep], np.asarray([e[1] for e in extra])))
-    fl = np.concatenate((flags[keep], np.asarray([e[2] for e in extra], np.uint8)))
-    order = np.argsort(cand, kind="stable")
-    return idx[cand[order]].astype(np.int64), envs[order], fl[order]
+            flags[k + 1] |= 4                                    # FLAG_MISSING
+    extra_flag = np.full(n_extra, 2, np.uint8)                  # FLAG_WEAK
+    return keep, flags, extra[:n_extra].copy(), extra_env[:n_extra].copy(), extra_flag
 
 
 def pulse_intervals(tr: Transitions) -> np.ndarray:
@@ -390,17 +409,26 @@ def detect_logic(x: np.ndarray, rate_hz: float, *, hysteresis: float = 0.2) -> T
     if first.size == 0:
         return _empty("logic", rate_hz, 0.0)
     change = np.flatnonzero(np.diff(state[first[0]:]) != 0) + first[0] + 1
-    times = np.empty(change.size)
-    for n, k in enumerate(change):
-        j = k
-        while j > 0 and (x[j - 1] - mid) * state[k] > 0:
-            j -= 1
-        a, b = x[j - 1] - mid, x[j] - mid
-        times[n] = (j - 1 + a / (a - b)) if j > 0 and a != b else j
+    times = _logic_times(np.ascontiguousarray(x), float(mid), state[change].astype(np.float64), change)
     lvl = np.where(state[change] > 0, hi, lo)
     env = np.full(change.size, 0.5 * span)
     return Transitions(times / rate_hz, change.astype(np.int64), lvl - mid, env,
                        np.zeros(change.size, np.uint8), float(rate_hz), "logic", 0.0)
+
+
+@kernel
+def _logic_times(x, mid, state_after, change):
+    """Each change of state at sample ``change[n]`` timed at the crossing of ``mid`` just before
+    it, walking back over the samples already past the mid level, linearly interpolated."""
+    times = np.empty(change.size)
+    for n in range(change.size):
+        k = change[n]
+        j = k
+        while j > 0 and (x[j - 1] - mid) * state_after[n] > 0:
+            j -= 1
+        a, b = x[j - 1] - mid, x[j] - mid
+        times[n] = (j - 1 + a / (a - b)) if j > 0 and a != b else j
+    return times
 
 
 def _empty(kind: str, rate_hz: float, sigma: float) -> Transitions:

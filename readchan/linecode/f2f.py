@@ -36,6 +36,8 @@ from typing import Callable
 import numpy as np
 from scipy.ndimage import median_filter
 
+from readchan._compiled import kernel
+
 BOUNDARY = 0.75
 """Decision boundary between a half cell and a full cell, in bit periods."""
 
@@ -178,14 +180,27 @@ def _assemble(t: np.ndarray, first: list[int], kind: list[int], r: np.ndarray, p
 def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
     """Viterbi parse of the intervals of ``t`` into F2F bits against the period trace."""
     r = np.diff(t) / period[:-1]
-    n = r.size
-    # move costs, vectorised; the recursion below only adds and compares them
-    zero = ((r - 1.0) ** 2).tolist()
-    lone_cost = (0.5 + (r - 0.5) ** 2).tolist()
-    pair = [float("inf")] + (((r[:-1] + r[1:] - 1.0) ** 2)
-                             + 0.5 * ((r[:-1] - 0.5) ** 2 + (r[1:] - 0.5) ** 2)).tolist()
-    move = [0] * (n + 1)          # 1: a 0 bit (one interval); 2: a 1 bit (two); 3: a lone half
-    prev2, prev1 = float("inf"), 0.0
+    if r.size == 0:
+        return _assemble(t, np.zeros(0, np.int64), np.zeros(0, np.int8), r, period[:0])
+    # move costs, vectorised; the recursion (:func:`_viterbi`) only adds and compares them
+    zero = (r - 1.0) ** 2
+    lone_cost = 0.5 + (r - 0.5) ** 2
+    pair = np.empty(r.size)
+    pair[0] = np.inf
+    pair[1:] = ((r[:-1] + r[1:] - 1.0) ** 2) + 0.5 * ((r[:-1] - 0.5) ** 2 + (r[1:] - 0.5) ** 2)
+    kinds = _viterbi(zero, lone_cost, pair)
+    widths = np.where(kinds == 2, 2, 1)
+    first = np.concatenate(([0], np.cumsum(widths)[:-1])).astype(np.int64)
+    return _assemble(t, first, kinds, r, period[first])
+
+
+@kernel
+def _viterbi(zero: np.ndarray, lone_cost: np.ndarray, pair: np.ndarray) -> np.ndarray:
+    """The least-cost sequence of moves over the intervals (1: a 0 bit of one interval; 2: a 1
+    bit of two; 3: a lone half), from the per-interval costs; int8 per bit, in time order."""
+    n = zero.size
+    move = np.zeros(n + 1, np.int8)
+    prev2, prev1 = np.inf, 0.0
     for i in range(1, n + 1):
         a = prev1 + zero[i - 1]
         b = prev1 + lone_cost[i - 1]
@@ -199,60 +214,71 @@ def _parse(t: np.ndarray, period: np.ndarray) -> BitStream:
         else:
             prev2, prev1 = prev1, b
             move[i] = 3
-    kinds = []
+    kinds = np.empty(n, np.int8)
+    k = 0
     i = n
     while i > 0:
         mv = move[i]
-        kinds.append(mv)
+        kinds[k] = mv
+        k += 1
         i -= 2 if mv == 2 else 1
-    kinds.reverse()
-    widths = np.where(np.asarray(kinds, np.int8) == 2, 2, 1)
-    first = np.concatenate(([0], np.cumsum(widths)[:-1])).astype(np.int64)
-    return _assemble(t, first, kinds, r, period[first])
+    return kinds[:k][::-1].copy()
 
 
 def _recover_loop(times_s: np.ndarray, *, loop_gain: float = 0.25,
                   period_at: Callable[[np.ndarray], np.ndarray] | None = None) -> BitStream:
     """The first-order tracking loop with threshold decisions (see the module docstring)."""
     t = np.asarray(times_s, dtype=float)
-    d_arr = np.diff(t)
-    nb = d_arr.size
-    if nb == 0:
+    d = np.diff(t)
+    if d.size == 0:
         z = np.zeros(0)
         return BitStream(np.zeros(0, np.uint8), z, z, z, np.zeros(0, np.uint8), np.zeros(0, np.int64), z)
-    ref = period_at(t[:-1]).tolist() if period_at is not None else None
-    T = initial_period(d_arr) if ref is None else float(ref[0])
-    # the loop runs over plain Python lists: one pass over the intervals, no numpy scalars
-    d = d_arr.tolist()
-    first, kind, period = [], [], []
-    ratio = [0.0] * nb
+    ref = np.asarray(period_at(t[:-1]), float) if period_at is not None else np.zeros(0)
+    T = initial_period(d) if period_at is None else float(ref[0])
+    first, kind, period, ratio = _track(d, float(T), ref, float(loop_gain))
+    return _assemble(t, first, kind, ratio, period)
+
+
+@kernel
+def _track(d: np.ndarray, T: float, ref: np.ndarray, loop_gain: float):
+    """The loop over the intervals ``d`` (s) from the period ``T`` (s); with a reference period
+    per interval in ``ref`` (non-empty), no tracking.  Returns each bit's first interval, kind
+    (1: a 0 bit, 2: a 1 bit, 3: a lone half) and period (s), and every interval's ratio."""
+    nb = d.size
+    first = np.empty(nb, np.int64)
+    kind = np.empty(nb, np.int8)
+    period = np.empty(nb)
+    ratio = np.zeros(nb)
+    tracking = ref.size == 0
+    k = 0
     i = 0
     while i < nb:
-        if ref is not None:
+        if not tracking:
             T = ref[i]
         di = d[i]
         r1 = di / T
         ratio[i] = r1
-        first.append(i)
-        period.append(T)
+        first[k] = i
+        period[k] = T
         if r1 >= BOUNDARY or i + 1 >= nb:
-            kind.append(1)
+            kind[k] = 1
             cell = di
             i += 1
         else:
             r2 = d[i + 1] / T
             ratio[i + 1] = r2
             if r2 >= BOUNDARY:
-                kind.append(3)
+                kind[k] = 3
                 cell = 2 * di
                 i += 1
             else:
-                kind.append(2)
+                kind[k] = 2
                 cell = di + d[i + 1]
                 i += 2
-        if ref is None and cell < 1.6 * T:
+        k += 1
+        if tracking and cell < 1.6 * T:
             T += loop_gain * (cell - T)
-    return _assemble(t, first, kind, np.asarray(ratio), np.asarray(period))
+    return first[:k].copy(), kind[:k].copy(), period[:k].copy(), ratio
 
 
 # -- encoding: the same code run forward, for the synthesizers --------------------------------
