@@ -7,7 +7,7 @@ import numpy as np
 from readchan.errors import FormatError
 from readchan.formats.iso7811.charset import TRACKS, CharFormat
 from readchan.formats.iso7811.framing import encode_text
-from readchan.synth import TrackContent
+from readchan.synth.spec import TrackContent
 
 
 def parse_bits(text: str) -> np.ndarray:
