@@ -1,5 +1,6 @@
-"""`readchan synth`: a synthesized capture of known content and impairments, written to a file
-(registered on the app)."""
+"""`readchan synth`: a synthesized card capture of known content and impairments, written to a file
+(registered on the app).  Tape captures are `readchan synth-ltc` and `readchan synth-kcs`
+(:mod:`readchan.cli.synth_tape`, registered from here so that they follow `synth` in ``--help``)."""
 
 from __future__ import annotations
 
@@ -63,7 +64,7 @@ def synth(
     gap_s_old: Optional[float] = typer.Option(None, "--gap-s", hidden=True, help="Old spelling of --pause-s."),
     kind_old: Optional[WriteKind] = typer.Option(None, "--kind", hidden=True, help="Old spelling of --file-type."),
 ) -> None:
-    """Synthesize a capture of known content and known impairments (one channel per track)."""
+    """Synthesize a card capture of known content and known impairments (one channel per track); tape: synth-ltc, synth-kcs."""
     from readchan.io.atomic import check_output_path
     from readchan.io.capture import display_path, write_capture
     from readchan.formats.iso7811.charset import parse_format
@@ -74,6 +75,8 @@ def synth(
     gap_um = renamed("--gap-um", "--head-gap-um", gap_um_old, head_gap_um, 12.0)
     gap_s = renamed("--gap-s", "--pause-s", gap_s_old, pause_s, 0.25)
     kind = renamed("--kind", "--file-type", kind_old, file_type, WriteKind.wav16)
+    if fmt is not None and fmt.strip().lower() in ("ltc", "kcs"):
+        raise ParameterError(f"tape captures have their own commands: readchan synth-{fmt.strip().lower()} OUT ...")
     check_output_path(output, force=force)   # before the work: exists, not a regular file, no directory
     custom = parse_format(fmt) if fmt else None
     tracks = []
@@ -124,3 +127,6 @@ def _refuse_undersampling(spec) -> None:
             label = t.label or f"channel {n}"
             raise ParameterError(f"--rate-hz {spec.rate_hz:g} undersamples {label} at up to {v_max:.3g} cm/s "
                                  f"({smp.text().split(': ', 1)[1]}); raise the rate or pass --force")
+
+
+from readchan.cli import synth_tape  # noqa: E402,F401,I001  (registers synth-ltc and synth-kcs after synth)

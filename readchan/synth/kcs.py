@@ -80,6 +80,12 @@ class KcsSpec:
                 raise ParameterError(f"{name} must be between 0 and 600 s, was {v!r}")
         if not math.isfinite(self.rate_hz) or not 12_000 <= self.rate_hz <= 10e6:
             raise ParameterError(f"rate_hz must be between 12 kHz and 10 MHz, was {self.rate_hz!r}")
+        if not math.isfinite(self.amplitude) or not 0 < self.amplitude <= 100:
+            raise ParameterError(f"amplitude must be above 0 and at most 100, was {self.amplitude!r}")
+        if not math.isfinite(self.harmonics_hz) or not 2400 <= self.harmonics_hz <= 1e7:
+            raise ParameterError(f"harmonics_hz must be between 2400 Hz and 10 MHz, was {self.harmonics_hz!r}")
+        if not math.isfinite(self.bit_phase_deg) or abs(self.bit_phase_deg) > 3600:
+            raise ParameterError(f"bit_phase_deg must be finite (within ±3600), was {self.bit_phase_deg!r}")
         if len(self.data) > 1_000_000:
             raise ParameterError("at most a million bytes per capture")
 

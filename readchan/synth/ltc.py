@@ -163,6 +163,12 @@ class LtcSpec:
             raise ParameterError(f"rise must be 'smpte', 'ebu' or seconds, was {self.rise!r}")
         if not math.isfinite(self.rate_hz) or not 1_000 <= self.rate_hz <= 10e6:
             raise ParameterError(f"rate_hz must be between 1 kHz and 10 MHz, was {self.rate_hz!r}")
+        if not math.isfinite(self.amplitude) or not 0 < self.amplitude <= 100:
+            raise ParameterError(f"amplitude must be above 0 and at most 100, was {self.amplitude!r}")
+        if not math.isfinite(self.tape_speed_cm_s) or not 0.1 <= self.tape_speed_cm_s <= 1000:
+            raise ParameterError(f"tape_speed_cm_s must be between 0.1 and 1000, was {self.tape_speed_cm_s!r}")
+        if not isinstance(self.rise, str) and (not math.isfinite(self.rise) or not 0 < self.rise <= 1e-3):
+            raise ParameterError(f"rise must be 'smpte', 'ebu' or a time above 0 and up to 1 ms, was {self.rise!r}")
         if not 0 <= self.start_cell < WORD_BITS:
             raise ParameterError(f"start_cell must lie within a frame (0–80), was {self.start_cell!r}")
 

@@ -14,19 +14,24 @@ position-to-time integration) is how far the recording has moved, in seconds of 
 Impairments, applied in the order a playback chain meets them: dropouts (the tape signal
 falls by ``depth_db`` with 1 ms raised-cosine edges; noise added later stays), white noise at
 ``snr_db`` below the signal's peak, mains hum, DC offset, a first-order AC-coupling high-pass,
-a playback band (second-order Butterworth band-pass, causal like an analog filter), and
-polarity inversion.
+a playback band (second-order Butterworth band-pass, causal like an analog filter),
+polarity inversion, and last the reader's analog chain (:class:`readchan.synth.chain.FrontEnd`:
+AC coupling, a causal preamp low-pass, quantisation), rendered at the output rate: the tape
+synthesizers draw their signal there, so the chain's filters run without the card
+synthesizer's oversampling (their bilinear-transform images are exact at the corner and close
+to the analog response well below the output's Nyquist frequency).
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy import signal as sps
 
 from readchan.errors import ParameterError
+from readchan.synth.chain import FrontEnd, filter_chain, quantise
 
 MIN_SPEED, MAX_SPEED = 0.05, 20.0
 
@@ -124,6 +129,7 @@ class Playback:
     band_hz : (low, high) corners of the playback band (Hz); None for a flat band.
     dropouts : ((start_s, duration_s, depth_db), ...) where the tape signal falls.
     invert : invert the polarity.
+    chain : the reader's analog chain (:class:`readchan.synth.chain.FrontEnd`), or None.
     """
 
     snr_db: float | None = None
@@ -134,8 +140,11 @@ class Playback:
     band_hz: tuple[float, float] | None = None
     dropouts: tuple[tuple[float, float, float], ...] = ()
     invert: bool = False
+    chain: FrontEnd | None = None
 
     def __post_init__(self) -> None:
+        if self.chain is not None and not isinstance(self.chain, FrontEnd):
+            raise ParameterError(f"chain must be a readchan.synth.chain.FrontEnd, was {type(self.chain).__name__}")
         if self.snr_db is not None:
             _finite("snr_db", self.snr_db, -20.0, 200.0)
         _finite("hum_hz", self.hum_hz, 0.0, 1e6)
@@ -179,6 +188,10 @@ class Playback:
             y = sps.sosfilt(sos, y)
         if self.invert:
             y = -y
+        if self.chain is not None:
+            fe = replace(self.chain, oversample=1)      # drawn at the output rate (module docstring)
+            fe.check_rate(rate_hz)
+            y = quantise(filter_chain(y[:, None], rate_hz, fe)[:, 0], fe)
         return y, rms
 
 
