@@ -1,7 +1,10 @@
 """`readchan inspect`: the front-end diagnostics report (registered on the main app).
 
-The measurements are :mod:`readchan.measure.diagnose`'s; :mod:`readchan.report.inspect` renders them
-as a rich report and as one JSON object (``--json``), :mod:`readchan.report.plot` as a PNG (``--plot``).
+Each capture is decoded once (:func:`readchan.channel.decode_capture`: the format registry finds
+each channel's format).  Card channels are measured by :mod:`readchan.measure.diagnose` and
+rendered by :mod:`readchan.report.inspect` and :mod:`readchan.report.plot`; tape reads (timecode,
+cassette data) by :mod:`readchan.measure.tape`, :mod:`readchan.report.tape_inspect` and
+:mod:`readchan.report.plot_tape`; both go into one JSON object (``--json``) and one plot (``--plot``).
 Those modules are imported when the command runs, not when the CLI starts.  Account
 numbers are masked everywhere unless ``--unmask`` is given.
 """
@@ -20,6 +23,8 @@ from readchan.cli.common import (CAPTURES, CHANNEL, FIELD_CHECK, FORMAT, HIGHPAS
 from readchan.errors import ParameterError
 
 PLOT_SUFFIXES = (".png", ".pdf", ".svg")
+TAPE_FAMILIES = ("timecode", "cassette")
+"""Channel families measured by :mod:`readchan.measure.tape` (the rest are cards)."""
 
 
 @app.command()
@@ -42,36 +47,100 @@ def inspect(
     kind_old: Optional[Kind] = SIGNAL_OLD,
     rate_old: Optional[float] = RATE_OLD,
 ) -> None:
-    """Measure every read: amplitude, noise, hum, PW50, speed, timing margin, anomalies, verdict."""
-    from readchan.io.capture import load_capture
-    from readchan.measure.diagnose import inspect_capture
+    """Measure every read: cards (amplitude, noise, hum, PW50, speed, timing margin, anomalies) and tape
+    (play speed and its changes, decision margins, level, SNR, dropouts, events); a verdict each."""
     from readchan.report.render import exit_code
-    from readchan.report.inspect import channel_dict, print_inspect, read_dict
 
     kind = renamed("--kind", "--signal", kind_old, signal, Kind.auto)
     rate = renamed("--rate", "--rate-hz", rate_old, rate_hz)
     settings = _settings(fmt, kind, track, notch, lowpass_hz, highpass_hz, field_check)
     targets = _plot_targets(plot, captures, force) if plot is not None else [None] * len(captures)
-    doc_reads, doc_channels, all_reads, all_results = [], [], [], []
+    doc = {"schema": schema("inspect"), "channels": [], "reads": []}
+    all_reads, all_results = [], []
     for path, target in zip(captures, targets):
-        cap = load_capture(path, rate_hz=rate)
-        reports = inspect_capture(cap, settings, _channels(channel))
-        for ch in reports:
-            all_reads.extend(r.read for r in ch.reads)
-            all_results.append(ch.result)
-            doc_channels.append(channel_dict(ch))
-            doc_reads.extend(read_dict(ch, r, unmask=unmask) for r in ch.reads)
+        cards, tapes, results, units = _inspect_one(path, rate, settings, channel)
+        all_results.extend(results)
+        all_reads.extend(r.read for ch in cards for r in ch.reads)
+        all_reads.extend(rep.read for rep, _ in tapes)
+        _add_to_doc(doc, cards, tapes, units, unmask)
         if not as_json:
-            print_inspect(out, str(path), reports, unmask=unmask)
+            _print(path, cards, tapes, units, unmask)
         if target is not None:
-            from readchan.report.plot import plot_reports
-
-            panels = plot_reports(reports, target, unmask=unmask, title=str(path), force=force)
-            err.print(f"wrote {target}: {panels} panel(s)", highlight=False)
+            _plot(target, path, cards, tapes, results, unmask, force)
     if as_json:
-        print(json.dumps({"schema": schema("inspect"), "channels": doc_channels, "reads": doc_reads}, indent=2,
-                         allow_nan=False))
+        print(json.dumps(doc, indent=2, allow_nan=False))
     raise typer.Exit(exit_code(all_reads, all_results))
+
+
+def _inspect_one(path: Path, rate: Optional[float], settings, channel):
+    """Decode a capture once (the registry finds each channel's format) and measure every
+    channel: card channels by :mod:`readchan.measure.diagnose`, tape reads by
+    :mod:`readchan.measure.tape`.  Returns (card reports, [(tape report, samples)], results, units)."""
+    import numpy as np
+
+    from readchan.channel import decode_capture
+    from readchan.io.capture import load_capture, repair_outliers
+    from readchan.measure.diagnose import inspect_channel
+
+    cap = load_capture(path, rate_hz=rate)
+    results = decode_capture(cap, settings, _channels(channel))
+    cards, tapes = [], []
+    for res in results:
+        x = np.ascontiguousarray(cap.channel(res.channel))
+        if res.outliers.size:             # measure what was decoded: the channel with its faults repaired
+            x = repair_outliers(x)[0]
+        if res.family in TAPE_FAMILIES:
+            from readchan.measure.tape import measure_tape
+
+            tapes.extend((measure_tape(r, x, cap.rate_hz, source=cap.source), x) for r in res.reads)
+        else:
+            cards.append(inspect_channel(x, cap.rate_hz, res, highpass_hz=settings.condition.highpass_hz,
+                                         units=cap.units, source=cap.source))
+    return cards, tapes, results, cap.units
+
+
+def _add_to_doc(doc: dict, cards, tapes, units: str, unmask: bool) -> None:
+    if cards:
+        from readchan.report.inspect import channel_dict, read_dict
+
+        doc["channels"].extend(channel_dict(ch) for ch in cards)
+        doc["reads"].extend(read_dict(ch, r, unmask=unmask) for ch in cards for r in ch.reads)
+    if tapes:
+        from readchan.report.tape_inspect import tape_channel_dict, tape_read_dict
+
+        seen = set()
+        for rep, _ in tapes:
+            if rep.channel not in seen:
+                seen.add(rep.channel)
+                doc["channels"].append(tape_channel_dict(rep, units))
+            doc["reads"].append(tape_read_dict(rep, units))
+
+
+def _print(path: Path, cards, tapes, units: str, unmask: bool) -> None:
+    if cards or not tapes:
+        from readchan.report.inspect import print_inspect
+
+        print_inspect(out, str(path), cards, unmask=unmask)
+    if tapes:
+        from readchan.report.tape_inspect import print_tape_inspect
+
+        print_tape_inspect(out, str(path), [rep for rep, _ in tapes], units)
+
+
+def _plot(target: Path, path: Path, cards, tapes, results, unmask: bool, force: bool) -> None:
+    """Card reads into ``target``; tape reads into it too when the capture has no card channel,
+    else into ``<target stem>-tape<suffix>`` beside it."""
+    if cards:
+        from readchan.report.plot import plot_reports
+
+        panels = plot_reports(cards, target, unmask=unmask, title=str(path), force=force)
+        err.print(f"wrote {target}: {panels} panel(s)", highlight=False)
+    if tapes:
+        from readchan.report.plot_tape import plot_tape
+
+        tape_target = target.with_name(f"{target.stem}-tape{target.suffix}") if cards else target
+        panels = plot_tape(tapes, tapes[0][0].rate_hz, tape_target, title=str(path), force=force)
+        err.print(f"wrote {tape_target}: {panels} panel(s)", highlight=False)
 
 
 def _plot_targets(plot: Path, captures: list[Path], force: bool) -> list[Path]:
