@@ -51,7 +51,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy import signal as sps
-from scipy.ndimage import median_filter, uniform_filter1d
+from scipy.ndimage import median_filter, minimum_filter1d, uniform_filter1d
 
 from readchan.results import Read
 
@@ -317,14 +317,16 @@ def _level_noise(x, rate_hz, read: Read, kind: str, t_s: np.ndarray, speed: np.n
 
 
 def _quiet_noise(x, rate_hz, a_s: float, b_s: float, level: float, min_s: float = 0.01) -> float | None:
-    """RMS over the samples outside [a_s − 5 ms, b_s + 5 ms] whose 1 ms envelope stays below a
-    tenth of ``level`` (the silence before a leader and after a trailer), when at least
-    ``min_s`` of it is left; else None."""
+    """RMS over the samples outside [a_s − 5 ms, b_s + 5 ms] whose 4 ms envelope stays below
+    0.4 × ``level`` (about half the tone's RMS: the silence before a leader and after a trailer,
+    told from tone down to about 8 dB SNR), less 4 ms at each end of every such stretch (the
+    envelope still holds tone there), when at least ``min_s`` of it is left; else None."""
     n = max(3, int(1e-3 * rate_hz))
     env = np.sqrt(np.maximum(uniform_filter1d(x * x, size=4 * n), 0.0))
     t = np.arange(x.size) / rate_hz
-    use = ((t < a_s - 5e-3) | (t > b_s + 5e-3)) & (env < 0.1 * level)
+    use = ((t < a_s - 5e-3) | (t > b_s + 5e-3)) & (env < 0.4 * level)
     use[:n] = use[-n:] = False                           # the filter's ends
+    use = minimum_filter1d(use, size=8 * n + 1)
     if np.count_nonzero(use) < min_s * rate_hz:
         return None
     return float(np.sqrt(np.mean(x[use] ** 2)))

@@ -28,16 +28,16 @@ def _f(v, digits: int = 6):
     return round(float(v), digits)
 
 
-def _bins(t: np.ndarray, y: np.ndarray, how) -> list:
-    """``[t_s, value]`` pairs, at most :data:`TRACE_POINTS`: ``how`` (mean or min) per bin."""
+def _points(t: np.ndarray, y: np.ndarray, *, least: bool = False) -> list:
+    """``[t_s, value]`` pairs, at most :data:`TRACE_POINTS`: points picked evenly along the trace,
+    or with ``least`` the least value of each of as many equal stretches."""
     if t.size <= TRACE_POINTS:
         return [[_f(a), _f(b)] for a, b in zip(t, y)]
+    if not least:
+        return [[_f(t[k]), _f(y[k])] for k in np.linspace(0, t.size - 1, TRACE_POINTS).round().astype(int)]
     edges = np.linspace(0, t.size, TRACE_POINTS + 1).astype(int)
-    out = []
-    for a, b in zip(edges[:-1], edges[1:]):
-        k = a + int(np.argmin(y[a:b])) if how is np.min else None
-        out.append([_f(t[k]), _f(y[k])] if k is not None else [_f(np.mean(t[a:b])), _f(np.mean(y[a:b]))])
-    return out
+    picks = [a + int(np.argmin(y[a:b])) for a, b in zip(edges[:-1], edges[1:])]
+    return [[_f(t[k]), _f(y[k])] for k in picks]
 
 
 def tape_channel_dict(rep: TapeReport, units: str) -> dict:
@@ -58,11 +58,11 @@ def tape_read_dict(rep: TapeReport, units: str) -> dict:
         "speed_mean_rel": _f(rep.speed_mean), "speed_min_rel": _f(rep.speed_min), "speed_max_rel": _f(rep.speed_max),
         "speed_changes": [{"start_s": _f(c.start_s), "end_s": _f(c.end_s), "from_rel": _f(c.from_speed),
                            "to_rel": _f(c.to_speed)} for c in rep.changes],
-        "speed_trace_rel": _bins(rep.speed_t_s, rep.speed, np.mean),
+        "speed_trace_rel": _points(rep.speed_t_s, rep.speed),
         "margin_unit": rep.unit, "margin_min": _f(rep.margin_min), "margin_p1": _f(rep.margin_p1),
         "margin_worst": None if w < 0 else {"index": w, "label": rep.unit_labels[w], "t_s": _f(rep.unit_t_s[w]),
                                             "margin": _f(rep.unit_margin[w])},
-        "margins": _bins(rep.unit_t_s, rep.unit_margin, np.min),
+        "margins": _points(rep.unit_t_s, rep.unit_margin, least=True),
         "units": units, "level_peak": _f(rep.level_peak), "noise_rms": _f(rep.noise_rms),
         "noise_from": rep.noise_from, "snr_db": _f(rep.snr_db, 3),
         "dropouts": [{"start_s": _f(d.start_s), "end_s": _f(d.end_s), "duration_s": _f(d.duration_s),
