@@ -11,6 +11,7 @@ Imports nothing numerical at module level, so that ``readchan --help`` starts fa
 
 from __future__ import annotations
 
+import inspect
 from enum import Enum
 from pathlib import Path
 from typing import Optional
@@ -23,32 +24,16 @@ from readchan.cli.tape_options import (build_chain, build_playback, build_speed,
                                        parse_edits, write_outputs)
 
 
-class TapeProfile(str, Enum):
-    constant = "constant"
-    ramp = "ramp"
-    shuttle = "shuttle"
-    points = "points"
+def _choice(name: str, *values: str) -> type[Enum]:
+    """A str enum of ``values`` (the command line's choices)."""
+    return Enum(name, {v: v for v in values}, type=str)
 
 
-class UserBitsKind(str, Enum):
-    constant = "constant"
-    counting = "counting"
-    text = "text"
-
-
-class Direction(str, Enum):
-    forward = "forward"
-    reverse = "reverse"
-
-
-class LtcSignal(str, Enum):
-    line = "line"
-    head = "head"
-
-
-class ToneShape(str, Enum):
-    sine = "sine"
-    square = "square"
+TapeProfile = _choice("TapeProfile", "constant", "ramp", "shuttle", "points")
+UserBitsKind = _choice("UserBitsKind", "constant", "counting", "text")
+Direction = _choice("Direction", "forward", "reverse")
+LtcSignal = _choice("LtcSignal", "line", "head")
+ToneShape = _choice("ToneShape", "sine", "square")
 
 
 # Options both tape commands take (one definition, two commands).
@@ -86,9 +71,37 @@ SEED = typer.Option(0, help="Random seed (the same options and seed give the sam
 FORCE = typer.Option(False, help="Overwrite existing files (regular files only); write beyond the sample "
                      "limit and at a rate that undersamples the signal.")
 TRUTH = typer.Option(None, "--truth-out", help="Also write the ground truth as JSON to this file.")
+SPEED_OPTIONS = (
+    ("profile", TapeProfile, PROFILE), ("speed", float, SPEED), ("speed_to", float, SPEED_TO),
+    ("ramp_s", float, RAMP_S), ("hold_s", float, HOLD_S), ("at_s", float, AT_S),
+    ("speed_points", Optional[str], POINTS), ("wow_depth", float, WOW), ("wow_hz", float, WOW_HZ),
+    ("flutter_depth", float, FLUTTER), ("flutter_hz", float, FLUTTER_HZ))
+PLAYBACK_OPTIONS = (
+    ("snr_db", Optional[float], SNR), ("hum_hz", float, HUM_HZ), ("hum_level", float, HUM),
+    ("dc_offset", float, DC), ("ac_coupling_hz", Optional[float], AC), ("band_hz", Optional[str], BAND),
+    ("dropout", Optional[list[str]], DROPOUT), ("invert", bool, INVERT),
+    ("preamp_lowpass_hz", Optional[float], PREAMP), ("preamp_order", int, PREAMP_ORDER),
+    ("preamp_family", PreampFamily, PREAMP_FAMILY), ("quantize_bits", Optional[int], QBITS),
+    ("scope_volts_per_div", Optional[float], SCOPE), ("rate_hz", float, RATE), ("file_type", WriteKind, FILE_TYPE),
+    ("seed", int, SEED), ("force", bool, FORCE), ("truth_out", Optional[Path], TRUTH))
+
+
+def _shared(*groups):
+    """Decorator: the command also takes the options of ``groups`` ((name, type, option) each),
+    after its own, passed in its ``**shared``; typer reads the signature set here."""
+    def wrap(func):
+        sig = inspect.signature(func)
+        own = [p for p in sig.parameters.values() if p.kind is not p.VAR_KEYWORD]
+        extra = [inspect.Parameter(n, inspect.Parameter.KEYWORD_ONLY, default=d, annotation=a)
+                 for group in groups for n, a, d in group]
+        func.__signature__ = sig.replace(parameters=own + extra)
+        func.__annotations__ = {**func.__annotations__, **{n: a for group in groups for n, a, _ in group}}
+        return func
+    return wrap
 
 
 @app.command("synth-ltc")
+@_shared(SPEED_OPTIONS, PLAYBACK_OPTIONS)
 def synth_ltc(
     output: Path = OUT,
     start: str = typer.Option("01:00:00:00", help="Label of the first recorded frame, HH:MM:SS:FF (';' before "
@@ -106,9 +119,6 @@ def synth_ltc(
     edit: Optional[list[str]] = typer.Option(None, "--edit", help="An edit at a recorded frame (repeatable): "
                                              "jump@N=TC, repeat@N, skip@N[,frames=K], splice@N=TC[,cut=CELLS]"
                                              "[,into=CELLS]."),
-    profile: TapeProfile = PROFILE, speed: float = SPEED, speed_to: float = SPEED_TO, ramp_s: float = RAMP_S,
-    hold_s: float = HOLD_S, at_s: float = AT_S, speed_points: Optional[str] = POINTS,
-    wow_depth: float = WOW, wow_hz: float = WOW_HZ, flutter_depth: float = FLUTTER, flutter_hz: float = FLUTTER_HZ,
     direction: Direction = typer.Option(Direction.forward, help="Direction of play."),
     signal: LtcSignal = typer.Option(LtcSignal.line, help="line: a deck's line output; head: the raw head."),
     rise: str = typer.Option("smpte", help="Line rise time 10-90 %: smpte (25 µs), ebu (50 µs) or microseconds."),
@@ -121,16 +131,10 @@ def synth_ltc(
     amplitude: float = AMPLITUDE,
     start_cell: float = typer.Option(31.3, "--start-cell", help="Bit cells into the first frame where the head "
                                      "starts (0-80)."),
-    snr_db: Optional[float] = SNR, hum_hz: float = HUM_HZ, hum_level: float = HUM, dc_offset: float = DC,
-    ac_coupling_hz: Optional[float] = AC, band_hz: Optional[str] = BAND, dropout: Optional[list[str]] = DROPOUT,
-    invert: bool = INVERT, preamp_lowpass_hz: Optional[float] = PREAMP, preamp_order: int = PREAMP_ORDER,
-    preamp_family: PreampFamily = PREAMP_FAMILY, quantize_bits: Optional[int] = QBITS,
-    scope_volts_per_div: Optional[float] = SCOPE,
-    rate_hz: float = RATE, file_type: WriteKind = FILE_TYPE, seed: int = SEED, force: bool = FORCE,
-    truth_out: Optional[Path] = TRUTH,
+    **shared,
 ) -> None:
     """Synthesize linear timecode (SMPTE ST 12-1) played back: labels, play speed, signal, impairments."""
-    _run_ltc(dict(locals()))
+    _run_ltc({**{k: v for k, v in locals().items() if k != "shared"}, **shared})
 
 
 def _run_ltc(o: dict) -> None:
@@ -160,6 +164,7 @@ def _run_ltc(o: dict) -> None:
 
 
 @app.command("synth-kcs")
+@_shared(SPEED_OPTIONS, PLAYBACK_OPTIONS)
 def synth_kcs(
     output: Path = OUT,
     text: Optional[str] = typer.Option(None, "--text", help="The bytes as text (UTF-8)."),
@@ -175,20 +180,11 @@ def synth_kcs(
     leader_s: float = typer.Option(0.2, "--leader-s", help="Mark leader before the first byte, seconds."),
     trailer_s: float = typer.Option(0.02, "--trailer-s", help="Mark after the last byte, seconds."),
     quiet_s: float = typer.Option(0.02, "--quiet-s", help="Silence before the leader and after the trailer, s."),
-    profile: TapeProfile = PROFILE, speed: float = SPEED, speed_to: float = SPEED_TO, ramp_s: float = RAMP_S,
-    hold_s: float = HOLD_S, at_s: float = AT_S, speed_points: Optional[str] = POINTS,
-    wow_depth: float = WOW, wow_hz: float = WOW_HZ, flutter_depth: float = FLUTTER, flutter_hz: float = FLUTTER_HZ,
     amplitude: float = AMPLITUDE,
-    snr_db: Optional[float] = SNR, hum_hz: float = HUM_HZ, hum_level: float = HUM, dc_offset: float = DC,
-    ac_coupling_hz: Optional[float] = AC, band_hz: Optional[str] = BAND, dropout: Optional[list[str]] = DROPOUT,
-    invert: bool = INVERT, preamp_lowpass_hz: Optional[float] = PREAMP, preamp_order: int = PREAMP_ORDER,
-    preamp_family: PreampFamily = PREAMP_FAMILY, quantize_bits: Optional[int] = QBITS,
-    scope_volts_per_div: Optional[float] = SCOPE,
-    rate_hz: float = RATE, file_type: WriteKind = FILE_TYPE, seed: int = SEED, force: bool = FORCE,
-    truth_out: Optional[Path] = TRUTH,
+    **shared,
 ) -> None:
     """Synthesize Kansas City standard cassette data played back: bytes, baud, tone, speed, impairments."""
-    _run_kcs(dict(locals()))
+    _run_kcs({**{k: v for k, v in locals().items() if k != "shared"}, **shared})
 
 
 def _run_kcs(o: dict) -> None:
