@@ -18,7 +18,7 @@ from typing import Optional
 
 import typer
 
-from readchan.cli.common import PreampFamily, PulseKind, WriteKind, app, err
+from readchan.cli.common import PreampFamily, PulseKind, WriteKind, app
 from readchan.errors import ParameterError
 from readchan.cli.tape_options import (build_chain, build_playback, build_speed, check_limits, parse_bytes,
                                        parse_edits, write_outputs)

@@ -5,6 +5,7 @@ Input: a :class:`readchan.results.Read` whose payload is a
 channel's samples (capture units) and the sample rate (Hz).
 Output: :class:`TapeReport` (frozen).
 
+Level, noise and dropouts are measured by :mod:`readchan.measure.tape_level`.
 Definitions (each also in the docstring of the field that holds it):
 
 * **play speed** (relative to nominal, 1 = the recording speed).  Timecode: per bit,
@@ -50,9 +51,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import signal as sps
-from scipy.ndimage import median_filter, minimum_filter1d, uniform_filter1d
+from scipy.ndimage import median_filter, uniform_filter1d
 
+from readchan.measure.tape_level import Dropout, envelope, find_dropouts, level_noise
 from readchan.results import Read
 
 LIMITS = {
@@ -66,7 +67,6 @@ LIMITS = {
 }
 """Verdict thresholds: (limit, kind, source)."""
 CHANGE_HYSTERESIS = 0.05
-DROP_DB = 6.0
 
 
 @dataclass(frozen=True)
@@ -77,19 +77,6 @@ class SpeedChange:
     end_s: float
     from_speed: float
     to_speed: float
-
-
-@dataclass(frozen=True)
-class Dropout:
-    """A fall of the signal level: from and to its −6 dB crossings (s), depth in dB."""
-
-    start_s: float
-    end_s: float
-    depth_db: float
-
-    @property
-    def duration_s(self) -> float:
-        return self.end_s - self.start_s
 
 
 @dataclass(frozen=True)
@@ -184,9 +171,9 @@ def measure_tape(read: Read, x: np.ndarray, rate_hz: float, source: str = "") ->
         kind = "tone"
     if t_s.size == 0:
         t_s, speed = np.array([span[0]]), np.array([float(getattr(p, "speed", 1.0))])
-    level, noise, noise_from = _level_noise(x, rate_hz, read, kind, t_s, speed)
-    env_t, env, window_s = _envelope(x, rate_hz, read, kind, t_s, speed)
-    drops = _dropouts(env_t, env, span, window_s)
+    level, noise, noise_from = level_noise(x, rate_hz, read, kind, t_s, speed)
+    env_t, env, window_s = envelope(x, rate_hz, read, kind, t_s, speed)
+    drops = find_dropouts(env_t, env, span, window_s)
     snr = 20 * math.log10(level / noise) if noise and level > 0 else None
     worst = int(np.argmin(unit_m)) if unit_m.size else -1
     m_min = float(unit_m[worst]) if unit_m.size else math.nan
@@ -281,127 +268,6 @@ def _turning_points(ls: np.ndarray, h: float) -> list[int]:
             pivots.append(ext)
             ext, trend = i, -trend
     return pivots + [ext] if trend else [0, ls.size - 1]
-
-
-def _slowest_noise(x, rate_hz, p, t_s: np.ndarray, speed: np.ndarray) -> float | None:
-    """The spectral noise floor of a raw-head timecode over the 0.2 s around its slowest play,
-    where the pulses' spectrum reaches least high (from 8 × the fastest bit rate in that window)."""
-    if speed.size == 0:
-        return None
-    c = float(t_s[int(np.argmin(speed))])
-    a, b = max(0.0, c - 0.1), min(x.size / rate_hz, c + 0.1)
-    near = (t_s >= a) & (t_s <= b)
-    f_lo = 8 * 80 * (p.rate_fps or p.rate_fps_candidates[0]) * float(np.max(speed[near]))
-    return _spectral_noise(x[int(a * rate_hz):int(b * rate_hz)], rate_hz, f_lo)
-
-
-def _level_noise(x, rate_hz, read: Read, kind: str, t_s: np.ndarray, speed: np.ndarray):
-    """(level_peak, noise RMS or None, how the noise was measured)."""
-    p = read.payload
-    if read.format == "ltc":
-        tb = p.bits
-        edges = np.sort(np.concatenate((tb.start_s, (0.5 * (tb.start_s + tb.end_s))[tb.bits == 1], tb.end_s[-1:])))
-        if kind == "line":
-            return _flat_level_noise(x, rate_hz, edges, np.median(tb.period_s))
-        idx = np.clip(np.round(tb.start_s * rate_hz).astype(np.int64), 2, x.size - 3)
-        peaks = np.max(np.abs(np.stack([x[idx + k] for k in (-2, -1, 0, 1, 2)])), axis=0)
-        return float(np.median(peaks)), _slowest_noise(x, rate_hz, p, t_s, speed), "spectrum"
-    a, b = (int(v * rate_hz) for v in (p.start_s, p.end_s))
-    seg = x[max(0, a):max(a + 1, b)]
-    rms = uniform_filter1d(seg * seg, size=max(3, int(1e-3 * rate_hz)))
-    level = math.sqrt(2.0 * float(np.median(rms)))
-    quiet = _quiet_noise(x, rate_hz, max(0.0, p.start_s - p.leader_s), p.end_s, level)
-    if quiet is not None:
-        return level, quiet, "quiet"
-    return level, _spectral_noise(x, rate_hz, 1.1 * 6000.0 * float(np.max(speed))), "spectrum"
-
-
-def _quiet_noise(x, rate_hz, a_s: float, b_s: float, level: float, min_s: float = 0.01) -> float | None:
-    """RMS over the samples outside [a_s − 5 ms, b_s + 5 ms] whose 4 ms envelope stays below
-    0.4 × ``level`` (about half the tone's RMS: the silence before a leader and after a trailer,
-    told from tone down to about 8 dB SNR), less 4 ms at each end of every such stretch (the
-    envelope still holds tone there), when at least ``min_s`` of it is left; else None."""
-    n = max(3, int(1e-3 * rate_hz))
-    env = np.sqrt(np.maximum(uniform_filter1d(x * x, size=4 * n), 0.0))
-    t = np.arange(x.size) / rate_hz
-    use = ((t < a_s - 5e-3) | (t > b_s + 5e-3)) & (env < 0.4 * level)
-    use[:n] = use[-n:] = False                           # the filter's ends
-    use = minimum_filter1d(use, size=8 * n + 1)
-    if np.count_nonzero(use) < min_s * rate_hz:
-        return None
-    return float(np.sqrt(np.mean(x[use] ** 2)))
-
-
-def _flat_level_noise(x, rate_hz, edges_s, period_s: float):
-    """Level and residual RMS of straight lines fitted to the flat stretches between edges."""
-    guard = max(3.0 / rate_hz, 0.1 * period_s)
-    a = np.ceil((edges_s[:-1] + guard) * rate_hz).astype(np.int64)
-    b = np.floor((edges_s[1:] - guard) * rate_hz).astype(np.int64) + 1
-    keep = (b - a >= 4) & (a >= 0) & (b <= x.size)
-    a, b = a[keep], b[keep]
-    if a.size < 4:
-        return float(np.max(np.abs(x))), None, "flat"
-    n = b - a
-    seg = np.repeat(np.arange(a.size), n)
-    i = np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n)     # index within its stretch
-    y = x[np.repeat(a, n) + i]
-    t = i.astype(float)
-    sums = [np.bincount(seg, w, a.size) for w in (t, y, t * t, t * y, y * y)]
-    st, sy, stt, sty, syy = sums
-    cov_ty = sty - st * sy / n
-    var_t = stt - st * st / n
-    rss = (syy - sy * sy / n) - cov_ty * cov_ty / np.maximum(var_t, 1e-12)
-    noise = math.sqrt(max(float(rss.sum()) / float((n - 2).sum()), 0.0))
-    means = sy / n
-    hi, lo = means[means > 0], means[means <= 0]
-    level = 0.5 * (float(np.median(hi)) - float(np.median(lo))) if hi.size and lo.size else float(np.max(np.abs(means)))
-    return level, noise, "flat"
-
-
-def _spectral_noise(x: np.ndarray, rate_hz: float, f_lo: float) -> float | None:
-    """RMS of white noise from the median Welch density over [f_lo, 0.45 rate] (None if empty)."""
-    f_hi = 0.45 * rate_hz
-    if f_lo >= 0.9 * f_hi or x.size < 4096:
-        return None
-    f, pxx = sps.welch(x, fs=rate_hz, nperseg=1024)
-    band = (f >= f_lo) & (f <= f_hi)
-    if np.count_nonzero(band) < 8:
-        return None
-    return math.sqrt(float(np.median(pxx[band])) * rate_hz / 2.0)
-
-
-def _envelope(x, rate_hz, read: Read, kind: str, t_s, speed):
-    """(times s, envelope / its median, window W s), every 0.25 ms or W/4."""
-    w_s = 1e-3
-    if kind == "head":
-        w_s = max(w_s, 2 * float(np.median(read.payload.bits.period_s)))
-    n = max(3, int(w_s * rate_hz))
-    env = np.sqrt(np.maximum(uniform_filter1d(x * x, size=n), 0.0))
-    step = max(1, n // 4)
-    t = np.arange(0, x.size, step) / rate_hz
-    env = env[::step]
-    if kind == "head":                                  # the head's level grows with speed
-        env = env / np.interp(t, t_s, speed)
-    ref = float(np.median(env))
-    return t, (env / ref if ref > 0 else env), w_s
-
-
-def _dropouts(t, env, span, window_s) -> tuple[Dropout, ...]:
-    inside = (t >= span[0] + window_s) & (t <= span[1] - window_s)
-    inner = env[inside]
-    if inner.size == 0:
-        return ()
-    ref = float(np.median(inner))
-    low = inside & (env < ref * 10 ** (-DROP_DB / 20))
-    edges = np.diff(np.concatenate(([0], low.astype(np.int8), [0])))
-    starts, stops = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
-    out = []
-    for a, b in zip(starts, stops):
-        if t[b - 1] - t[a] < 0.5 * window_s:
-            continue
-        depth = -20 * math.log10(max(float(np.min(env[a:b])) / ref, 1e-6))
-        out.append(Dropout(float(t[a]), float(t[b - 1]), depth))
-    return tuple(out)
 
 
 def _events(read: Read) -> tuple[TapeEvent, ...]:
