@@ -162,8 +162,14 @@ def main(argv: list[str] | None = None) -> int:
     if args.json:
         print(json.dumps({"cells": rows, "summary": summary}, indent=2))
         return 0
+    print_table(rows, summary, args.trials)
+    return 0
+
+
+def print_table(rows: list[dict], summary: dict, trials: int) -> None:
+    """The grid's rows and the summary as a rich table with the false-accept line under it."""
     out = Console(width=120) if not sys.stdout.isatty() else Console()
-    t = Table(title=f"read success over the impairment grid, {args.trials} trials per cell")
+    t = Table(title=f"read success over the impairment grid, {trials} trials per cell")
     for col, just in (("cell", "left"), ("track", "right"), ("rate kHz", "right"), ("readchan", "right"),
                       ("reference", "right"), ("char errors", "right"), ("false accepts", "right")):
         t.add_column(col, justify=just)
@@ -175,11 +181,10 @@ def main(argv: list[str] | None = None) -> int:
     t.add_row("all cells", "", "", f"{100 * summary['success_rate']:.1f} %",
               f"{100 * summary['reference_success_rate']:.1f} %", "", str(summary["false_accepts_grid"]))
     out.print(t)
-    out.print(f"false accepts: {summary['false_accepts_grid']} in {total_trials} grid trials "
+    out.print(f"false accepts: {summary['false_accepts_grid']} in {summary['trials']} grid trials "
               f"(reference: {sum(r['reference_false_accepts'] for r in rows)}), "
-              f"{noise_hits} in {args.noise} pure-noise captures")
-    out.print(f"{elapsed:.1f} s on {workers} worker(s)")
-    return 0
+              f"{summary['false_accepts_noise']} in {summary['noise_captures']} pure-noise captures")
+    out.print(f"{summary['elapsed_s']:.1f} s on {summary['workers']} worker(s)")
 
 
 if __name__ == "__main__":

@@ -45,7 +45,6 @@ import sys
 import time
 
 import numpy as np
-from scipy import signal as sps
 
 from readchan.channel import DecodeSettings, decode_channel
 from readchan.formats.iso7813 import luhn_check_digit
@@ -103,6 +102,8 @@ def _render(text: str | None, bits: np.ndarray | None, track: int, speed: SpeedP
 
 def damaged_capture(kind: str, track: int, reverse: bool, rng: np.random.Generator):
     """(samples, rate_hz, recorded texts) of one damaged capture."""
+    # Stays whole: one short branch per kind of damage, all sharing the swipe's rendering, its
+    # cell times and the random stream (whose order fixes the benchmark's numbers).
     spec_t = TRACKS[track]
     rate = 48_000.0 if track == 2 else 96_000.0
     truth = invented_content(track, rng)

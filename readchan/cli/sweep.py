@@ -144,6 +144,7 @@ def sweep(
     force: bool = typer.Option(False, help="Overwrite the --plot file if it exists (a regular file only)."),
 ) -> None:
     """Sweep one impairment: success, character errors and false accepts per step; where it drops below 99 %."""
+    # over 60 lines only by its option list (typer reads the options from the signature)
     from readchan.evaluate.plot import check_plot_path, plot_sweep
     from readchan.evaluate.sweep import SweepSpec, run_sweep
     from readchan.synth import Impairments

@@ -99,6 +99,7 @@ def write_capture(path: str | Path, samples: np.ndarray, rate_hz: float, *, kind
     ClippingWarning
         If integer-PCM kinds had to clip values outside -1..1.
     """
+    # over 60 lines only by its docstring (the parameter reference); the steps are named helpers
     target = check_output_path(path)
     source = str(path)
     _check_kind(kind, target, source)

@@ -106,6 +106,32 @@ PULSE_REACH_CELLS = 4.0
 """Samples within this many typical intervals of an isolated pulse are left out of the noise."""
 
 
+MAD_TO_SIGMA = 1.4826
+"""σ of Gaussian noise per unit of its median absolute deviation, 1/Φ⁻¹(3/4) (the
+normal-consistent MAD; Rousseeuw & Croux, JASA 88, 1993)."""
+
+MIN_NOISE_SAMPLES = 64
+"""Fewest samples a noise RMS is taken over (our choice: the RMS of 64 Gaussian samples has a
+relative standard error of 1/√(2·64) ≈ 9 %)."""
+
+SMOOTH_MIN_S = 1e-3
+"""Shortest moving-average window (seconds) of the slow-content test in :func:`robust_noise`."""
+
+SMOOTH_CELLS = 4.0
+"""Moving-average window of the slow-content test in typical intervals, when longer than
+:data:`SMOOTH_MIN_S` (our choice: long enough to average the noise, short beside a recovery)."""
+
+BLOCK_MIN_S = 0.002
+"""Shortest block (seconds) of the detrended noise RMS (:func:`_detrended_rms`)."""
+
+BLOCK_CELLS = 8.0
+"""Block of the detrended noise RMS in typical intervals, when longer than :data:`BLOCK_MIN_S`
+(our choice: steady noise's block RMS then varies by about a tenth)."""
+
+BLOCK_MIN_SAMPLES = 32
+"""Fewest samples of a block of the detrended noise RMS."""
+
+
 def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: float = 1e-3,
                  step: float | None = None) -> NoiseEstimate | None:
     """Noise RMS on the quiet samples of ``w`` that isolated pulses and slow content cannot move.
@@ -127,15 +153,13 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
        of noise counts at its full power (quantisation noise included: it is not Gaussian,
        and a MAD would misjudge it).
 
-    Returns None when fewer than 64 samples are left.
+    Returns None when fewer than :data:`MIN_NOISE_SAMPLES` samples are left.
     """
-    from scipy.ndimage import binary_dilation, uniform_filter1d
-
     q = np.asarray(quiet, bool)
-    if q.sum() < 64:
+    if q.sum() < MIN_NOISE_SAMPLES:
         return None
     vals = w[q]
-    s0 = 1.4826 * float(np.median(np.abs(vals - np.median(vals))))
+    s0 = MAD_TO_SIGMA * float(np.median(np.abs(vals - np.median(vals))))
     if step:
         s0 = max(s0, 0.5 * step)
     if not s0 > 0:
@@ -143,6 +167,23 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
     if not s0 > 0:
         return NoiseEstimate(0.0, float(q.sum()) / rate_hz, 0, 0.0)
     reach = max(1, int(PULSE_REACH_CELLS * cell_s * rate_hz))
+    hot, n_pulses = _isolated_pulses(w, q, s0, reach)
+    keep = q & ~hot
+    m = max(8, int(max(SMOOTH_MIN_S, SMOOTH_CELLS * cell_s) * rate_hz))
+    slow = _slow_content(w, keep, m, step)
+    use = keep & ~slow
+    if use.sum() < MIN_NOISE_SAMPLES:
+        return None
+    block = max(int(BLOCK_MIN_S * rate_hz), int(BLOCK_CELLS * cell_s * rate_hz), BLOCK_MIN_SAMPLES)
+    rms, use, unsteady = _detrended_rms(w, use, block)
+    return NoiseEstimate(rms, float(use.sum()) / rate_hz, n_pulses, float((slow.sum() + unsteady) / rate_hz), use)
+
+
+def _isolated_pulses(w: np.ndarray, q: np.ndarray, s0: float, reach: int) -> tuple[np.ndarray, int]:
+    """Step 2 of :func:`robust_noise`: the samples within ``reach`` samples of a quiet sample
+    beyond ``PULSE_SIGMA``·``s0``, and how many pulses (clusters closer than the reach) they hold."""
+    from scipy.ndimage import binary_dilation
+
     hot = q & (np.abs(w) > PULSE_SIGMA * s0)
     n_pulses = 0
     if hot.any():
@@ -150,15 +191,21 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
         hi = np.flatnonzero(hot)
         n_pulses = int(1 + np.count_nonzero(np.diff(hi) > reach))
         hot = binary_dilation(hot, np.ones(2 * reach + 1, bool))
-    keep = q & ~hot
-    m = max(8, int(max(1e-3, 4 * cell_s) * rate_hz))
+    return hot, n_pulses
+
+
+def _slow_content(w: np.ndarray, keep: np.ndarray, m: int, step: float | None) -> np.ndarray:
+    """Step 3 of :func:`robust_noise`: the kept samples where the moving average over ``m``
+    samples leaves ±``SLOW_SIGMA`` robust σ of itself, widened by ``m`` on each side."""
+    from scipy.ndimage import binary_dilation, uniform_filter1d
+
     smooth = uniform_filter1d(np.where(keep, w, 0.0), m, mode="constant")
     cnt = uniform_filter1d(keep.astype(float), m, mode="constant")
     full = keep & (cnt > 0.999)
     slow = np.zeros_like(keep)
-    if full.sum() >= 64:
+    if full.sum() >= MIN_NOISE_SAMPLES:
         sm = smooth[full]
-        s1 = 1.4826 * float(np.median(np.abs(sm - np.median(sm))))
+        s1 = MAD_TO_SIGMA * float(np.median(np.abs(sm - np.median(sm))))
         if step:
             s1 = max(s1, step / math.sqrt(12.0 * m))
         if s1 > 0:
@@ -170,11 +217,7 @@ def robust_noise(w: np.ndarray, rate_hz: float, quiet: np.ndarray, *, cell_s: fl
             slow = part & (dev > SLOW_SIGMA * s1)
             if slow.any():
                 slow = binary_dilation(slow, np.ones(2 * m + 1, bool)) & keep
-    use = keep & ~slow
-    if use.sum() < 64:
-        return None
-    rms, use, unsteady = _detrended_rms(w, use, max(int(0.002 * rate_hz), int(8 * cell_s * rate_hz), 32))
-    return NoiseEstimate(rms, float(use.sum()) / rate_hz, n_pulses, float((slow.sum() + unsteady) / rate_hz), use)
+    return slow
 
 
 UNSTEADY_RATIO = 1.5

@@ -80,17 +80,17 @@ def channel_dict(ch: ChannelReport) -> dict:
 def _noise_provenance(fe) -> dict:
     """Where the noise and hum figures came from (keys shared by the channel and read JSON)."""
     return {
-    "noise_from": fe.noise_from,
-    "quiet_s": _f(fe.quiet_s),
-    "noise_used_s": _f(fe.noise_used_s),
-    "noise_pulses_excluded": fe.noise_pulses_excluded,
-    "noise_slow_excluded_s": _f(fe.noise_slow_excluded_s),
-    "noise_floored": fe.noise_floored,
-    "quant_step": _f(fe.quant_step),
-    "hum_from": fe.hum_from,
-    "hum_hz": _f(fe.hum_hz),
-    "mains_hz": _f(fe.mains_hz),
-    "hum_amplitude": _f(fe.hum_amplitude),
+        "noise_from": fe.noise_from,
+        "quiet_s": _f(fe.quiet_s),
+        "noise_used_s": _f(fe.noise_used_s),
+        "noise_pulses_excluded": fe.noise_pulses_excluded,
+        "noise_slow_excluded_s": _f(fe.noise_slow_excluded_s),
+        "noise_floored": fe.noise_floored,
+        "quant_step": _f(fe.quant_step),
+        "hum_from": fe.hum_from,
+        "hum_hz": _f(fe.hum_hz),
+        "mains_hz": _f(fe.mains_hz),
+        "hum_amplitude": _f(fe.hum_amplitude),
     }
 
 
@@ -98,8 +98,6 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
     """One read's diagnostics as a JSON-ready dict (stable keys; units in the key names)."""
     rd, fr, tm, fe = r.read, r.read.frame, r.timing, ch.front_end
     a, n, p = r.amplitude, r.noise, r.pulse
-    worst_char = r.bit_char()[tm.margin_min_bit] if len(rd.bits) else -1
-    p1_char = r.bit_char()[tm.margin_p1_bit] if len(rd.bits) else -1
     least = r.least
     amp_trace = [] if a is None else _trace(a.t_s, a.smooth)
     speed_trace = [] if tm.speed_fit_cm_s is None else _trace(tm.bit_t_s, tm.speed_fit_cm_s)
@@ -116,56 +114,10 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
         "start_s": _f(rd.start_s),
         "end_s": _f(rd.end_s),
         "bits": int(len(rd.bits)),
-        "amplitude": None if a is None else {
-            "units": fe.units,
-            "median_peak": _f(a.median_peak),
-            "min_peak": _f(a.min_peak),
-            "max_peak": _f(a.max_peak),
-            "positive_median": _f(a.positive_median),
-            "negative_median": _f(a.negative_median),
-            "asymmetry_pct": _f(a.asymmetry_pct),
-            "clipped_fraction": _f(a.clipped_fraction),
-        },
-        "noise": None if n is None else {
-            "units": fe.units,
-            "noise_rms": _f(n.noise_rms),
-            "snr_db": _f(n.snr_db),
-            **_noise_provenance(fe),
-            "hum_ratio": _f(n.hum_ratio),
-            "dc_offset": _f(fe.dc_offset),
-            "wander_pp": _f(fe.wander_pp),
-        },
-        "pulse": None if p is None else {
-            "pw50_s": _f(p.pw50_s),
-            "pw50_cell": _f(p.pw50_cell),
-            "width_cell": _f(p.width_cell),
-            "pw50_m": _f(p.pw50_m),
-            "pulses": p.n_pulses,
-            "resolution": _f(p.resolution),
-        },
-        "timing": {
-            "mean_period_s": _f(float(np.mean(tm.period_s))) if tm.period_s.size else None,
-            "mean_speed_cm_s": _f(tm.mean_speed_cm_s),
-            "min_speed_cm_s": _f(tm.min_speed_cm_s),
-            "max_speed_cm_s": _f(tm.max_speed_cm_s),
-            "mean_accel_m_s2": _f(tm.mean_accel_m_s2),
-            "max_abs_accel_m_s2": _f(tm.max_abs_accel_m_s2),
-            "speed_change_per_bit": _f(tm.speed_change_per_bit),
-            "margin_min": _f(tm.margin_min),
-            "margin_min_t_s": _f(tm.margin_min_t_s),
-            "margin_min_bit": tm.margin_min_bit,
-            "margin_min_char": _char(r, int(worst_char) if worst_char >= 0 else None, unmask),
-            "margin_p1": _f(tm.margin_p1),
-            "margin_p1_t_s": _f(tm.margin_p1_t_s),
-            "margin_p1_bit": tm.margin_p1_bit,
-            "margin_p1_char": _char(r, int(p1_char) if p1_char >= 0 else None, unmask),
-            "peak_shift_s": _f(tm.peak_shift_s),
-            "peak_shift_cell": _f(tm.peak_shift_cell),
-            "interval_histogram": {
-                "edges_cell": [_f(e) for e in tm.hist_edges_cell],
-                "counts": [int(c) for c in tm.hist_counts],
-            },
-        },
+        "amplitude": None if a is None else _amplitude_dict(a, fe),
+        "noise": None if n is None else _noise_dict(n, fe),
+        "pulse": None if p is None else _pulse_dict(p),
+        "timing": _timing_dict(r, unmask),
         "trace": {
             "speed_cm_s": speed_trace,
             "amplitude": amp_trace,
@@ -185,6 +137,61 @@ def read_dict(ch: ChannelReport, r: ReadReport, *, unmask: bool = False) -> dict
             "failed": [c.limit.name for c in r.failed],
             "least": None if least is None else least.limit.name,
             "text": r.verdict,
+        },
+    }
+
+
+def _numbers(obj, names: tuple[str, ...]) -> dict:
+    """``{name: _f(obj.name)}`` for every name, in order (a measurement's JSON numbers)."""
+    return {name: _f(getattr(obj, name)) for name in names}
+
+
+def _amplitude_dict(a, fe) -> dict:
+    """The ``amplitude`` object of :func:`read_dict` (capture units)."""
+    return {"units": fe.units, **_numbers(a, ("median_peak", "min_peak", "max_peak", "positive_median",
+                                              "negative_median", "asymmetry_pct", "clipped_fraction"))}
+
+
+def _noise_dict(n, fe) -> dict:
+    """The ``noise`` object of :func:`read_dict` (capture units, dB)."""
+    return {
+        "units": fe.units,
+        "noise_rms": _f(n.noise_rms),
+        "snr_db": _f(n.snr_db),
+        **_noise_provenance(fe),
+        "hum_ratio": _f(n.hum_ratio),
+        "dc_offset": _f(fe.dc_offset),
+        "wander_pp": _f(fe.wander_pp),
+    }
+
+
+def _pulse_dict(p) -> dict:
+    """The ``pulse`` object of :func:`read_dict` (seconds, cells, metres)."""
+    return {**_numbers(p, ("pw50_s", "pw50_cell", "width_cell", "pw50_m")), "pulses": p.n_pulses,
+            "resolution": _f(p.resolution)}
+
+
+def _timing_dict(r: ReadReport, unmask: bool) -> dict:
+    """The ``timing`` object of :func:`read_dict`: speed, margins (with their characters,
+    masked unless ``unmask``), peak shift and the interval histogram."""
+    tm = r.timing
+    worst_char = r.bit_char()[tm.margin_min_bit] if len(r.read.bits) else -1
+    p1_char = r.bit_char()[tm.margin_p1_bit] if len(r.read.bits) else -1
+    return {
+        "mean_period_s": _f(float(np.mean(tm.period_s))) if tm.period_s.size else None,
+        **_numbers(tm, ("mean_speed_cm_s", "min_speed_cm_s", "max_speed_cm_s", "mean_accel_m_s2",
+                        "max_abs_accel_m_s2", "speed_change_per_bit", "margin_min", "margin_min_t_s")),
+        "margin_min_bit": tm.margin_min_bit,
+        "margin_min_char": _char(r, int(worst_char) if worst_char >= 0 else None, unmask),
+        "margin_p1": _f(tm.margin_p1),
+        "margin_p1_t_s": _f(tm.margin_p1_t_s),
+        "margin_p1_bit": tm.margin_p1_bit,
+        "margin_p1_char": _char(r, int(p1_char) if p1_char >= 0 else None, unmask),
+        "peak_shift_s": _f(tm.peak_shift_s),
+        "peak_shift_cell": _f(tm.peak_shift_cell),
+        "interval_histogram": {
+            "edges_cell": [_f(e) for e in tm.hist_edges_cell],
+            "counts": [int(c) for c in tm.hist_counts],
         },
     }
 
