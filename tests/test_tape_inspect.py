@@ -48,9 +48,9 @@ SHUTTLE = ("--profile", "shuttle", "--speed", "1", "--speed-to", "4", "--ramp-s"
 
 
 def test_ltc_speed_trace_follows_a_shuttle_within_one_percent(monkeypatch, capsys, tmp_path):
-    # 1 %: the trace is a 16-bit mean of bit periods each timed from line-level edges; at 30 dB
-    # the edge jitter is under 1 % of a cell, and a 16-bit mean lags a 7.5×/s ramp by under 0.1 %
-    # (observed: 0.5 % worst, 0.03 % median)
+    # 1 %: each trace point is 16 cells over the time between two line-level edges 16 cells
+    # apart, each timed to a few µs at 30 dB; a 16-cell window averages across the knee of a
+    # 7.5×/s ramp by slope × window / 8, 0.6 % at 1× (observed: 0.63 % worst)
     wav, truth = synth(monkeypatch, capsys, tmp_path, "synth-ltc", *SHUTTLE)
     code, doc = inspect(monkeypatch, capsys, wav)
     r = doc["reads"][0]
@@ -70,15 +70,16 @@ def test_ltc_shuttle_changes_are_found_at_their_ten_and_ninety_percent_points(mo
         assert abs(ch["start_s"] - t10) < 0.01 and abs(ch["end_s"] - t90) < 0.01
 
 
-def test_raw_head_spin_up_from_a_fifth_of_nominal_is_followed_within_two_percent(monkeypatch, capsys, tmp_path):
-    # 2 %: at 0.2× the head's pulses are a fifth as large (Faraday) while the noise stays, so the
-    # bit periods there are timed at about 16 dB (observed: 1.2 % worst, 0.1 % median)
+def test_raw_head_spin_up_from_a_fifth_of_nominal_is_followed_within_three_percent(monkeypatch, capsys, tmp_path):
+    # 3 %: at 0.2× the head's pulses are a fifth as large (Faraday) while the noise stays, so they
+    # are timed at about 16 dB there, and the 16-cell window averages across the ramp's knee by
+    # slope × window / 8, up to 2.5 % at 0.2× (observed: 0.36 % worst)
     wav, truth = synth(monkeypatch, capsys, tmp_path, "synth-ltc", "--signal", "head", "--profile", "ramp",
                        "--speed", "0.2", "--speed-to", "1", "--ramp-s", "0.8", "--at-s", "0.3", "--snr-db", "30",
                        "--duration-s", "2")
     _, doc = inspect(monkeypatch, capsys, wav)
     r = doc["reads"][0]
-    assert r["signal_kind"] == "head" and np.max(np.abs(speed_errors(r, truth))) < 0.02
+    assert r["signal_kind"] == "head" and np.max(np.abs(speed_errors(r, truth))) < 0.03
     (change,) = r["speed_changes"]
     t10, t90 = ten_ninety(truth, 0.3, 1.1, 0.2, 1.0)
     assert abs(change["start_s"] - t10) < 0.03 and abs(change["end_s"] - t90) < 0.03
@@ -86,7 +87,7 @@ def test_raw_head_spin_up_from_a_fifth_of_nominal_is_followed_within_two_percent
 
 def test_kcs_speed_offset_and_wow_are_followed_within_half_a_percent(monkeypatch, capsys, tmp_path):
     # 0.5 %: the tone track's speed is a circular mean over 32 half cycles, then a median over
-    # 65 of them (observed: 0.3 % worst at +10 % with 1 % wow)
+    # 65 of them (observed: 0.29 % worst at +10 % with 1 % wow)
     wav, truth = synth(monkeypatch, capsys, tmp_path, "synth-kcs", "--text", "x" * 60, "--baud", "1200",
                        "--speed", "1.1", "--wow-depth", "0.01", "--snr-db", "25")
     code, doc = inspect(monkeypatch, capsys, wav)
@@ -176,3 +177,16 @@ def test_a_card_capture_still_gets_the_card_report(monkeypatch, capsys, tmp_path
     _, doc = inspect(monkeypatch, capsys, card)
     r = doc["reads"][0]
     assert r["track"] == 2 and "speed_trace_rel" not in r and "amplitude" in r
+
+
+def test_speeds_are_relative_to_the_basis_rate_when_the_capture_does_not_decide_it(monkeypatch, capsys, tmp_path):
+    # 0.3× for 3 s plays 0.9 s of 25 fps tape: no wrap of the frame number, frames up to 22, so
+    # 24, 25, 29.97 and 30 fps all remain (README, frame rate) and the speed is relative to the first
+    wav, _ = synth(monkeypatch, capsys, tmp_path, "synth-ltc", "--speed", "0.3", "--duration-s", "3",
+                   "--start", "01:00:00:00", "--snr-db", "30")
+    code, out, _ = run(monkeypatch, capsys, "decode", "--json", wav)
+    dec = json.loads(out)["reads"][0]
+    _, doc = inspect(monkeypatch, capsys, wav)
+    r = doc["reads"][0]
+    assert dec["rate_fps"] is None and r["speed_basis_fps"] == dec["rate_fps_candidates"][0]
+    assert r["speed_mean_rel"] * r["speed_basis_fps"] / 25 == pytest.approx(0.3, rel=2e-3)

@@ -8,12 +8,13 @@ Output: :class:`TapeReport` (frozen).
 Level, noise and dropouts are measured by :mod:`readchan.measure.tape_level`.
 Definitions (each also in the docstring of the field that holds it):
 
-* **play speed** (relative to nominal, 1 = the recording speed).  Timecode: per bit,
-  1 / (80 · fps · T) with T the bit period the biphase parse decided the bit against
-  (:func:`readchan.linecode.biphase.period_trace`) and fps the read's rate (its first candidate
-  when undecided), then a running mean over 16 bits.  Cassette: the local tape speed of the
+* **play speed** (relative to nominal, 1 = the recording speed).  Timecode: over 16 cells of
+  each passing frame, every 8 cells, 16 / (80 · fps · Δt) with Δt the time between the cell
+  boundaries 16 cells apart and fps the read's rate (its first candidate when undecided, as the
+  frames' ``speed``; ``speed_basis_fps`` in the JSON).  Cassette: the local tape speed of the
   tone track (:func:`readchan.formats.kcs.read.tone_track`: the circular mean of log2 of 32
   half-cycle lengths) on the tone's half cycles.
+  The trace leaves out the dropouts (below), where the timing is the noise's.
 * **speed changes**: turning points of the speed trace with 5 % hysteresis (our choice: above
   the 0.3 % wow and flutter of a deck, below any deliberate change); each change between two
   turning points more than 5 % apart is reported from where it has covered 10 % of the way to
@@ -36,7 +37,8 @@ Definitions (each also in the docstring of the field that holds it):
   that narrows the noise makes the spectral estimate the noise above it.  SNR =
   20·log10(level / noise RMS), the synthesizers' definition.
 * **dropouts**: the envelope sqrt(running mean of (x − median)² over W) (W = 1 ms, or two bit
-  cells of a raw-head timecode, whose level is divided by the play speed, Faraday's law),
+  cells at the slowest play, the 99th percentile of the bit period, for a raw-head timecode,
+  whose level is divided by the play speed, Faraday's law),
   against its median over the signal; a dropout is where it stays below half (−6 dB) for at
   least W/2, from and to the −6 dB crossings (a deep dropout reads about W/2 shorter than its
   half-level width), depth = −20·log10(least envelope / median).
@@ -51,7 +53,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.ndimage import median_filter, uniform_filter1d
+from scipy.ndimage import median_filter
 
 from readchan.measure.tape_level import Dropout, envelope, find_dropouts, level_noise
 from readchan.results import Read
@@ -174,6 +176,7 @@ def measure_tape(read: Read, x: np.ndarray, rate_hz: float, source: str = "") ->
     level, noise, noise_from = level_noise(x, rate_hz, read, kind, t_s, speed)
     env_t, env, window_s = envelope(x, rate_hz, read, kind, t_s, speed)
     drops = find_dropouts(env_t, env, span, window_s)
+    t_s, speed = _outside(t_s, speed, drops, window_s)
     snr = 20 * math.log10(level / noise) if noise and level > 0 else None
     worst = int(np.argmin(unit_m)) if unit_m.size else -1
     m_min = float(unit_m[worst]) if unit_m.size else math.nan
@@ -187,15 +190,25 @@ def measure_tape(read: Read, x: np.ndarray, rate_hz: float, source: str = "") ->
 
 
 def _ltc_speed(p) -> tuple[np.ndarray, np.ndarray]:
-    """Speed per bit of the passing frames, a running mean over 16 bits within each frame, every 8th."""
+    """Speed over 16 cells of each passing frame, every 8 cells: 16 nominal bit periods over the
+    time between the boundaries 16 cells apart (9 points a frame, at the windows' middles)."""
     tb = p.bits
     if not p.frames:
         return np.zeros(0), np.zeros(0)
     fps = p.rate_fps if p.rate_fps is not None else p.rate_fps_candidates[0]
     idx = np.stack([np.arange(f.first_bit, f.first_bit + 80) for f in p.frames])
-    v = uniform_filter1d(1.0 / (80.0 * fps * tb.period_s[idx]), size=16, axis=1, mode="nearest")
-    t = 0.5 * (tb.start_s + tb.end_s)[idx]
-    return t[:, 4::8].ravel(), v[:, 4::8].ravel()
+    edges = np.concatenate((tb.start_s[idx], tb.end_s[idx[:, -1:]]), axis=1)     # 81 boundaries a frame
+    a, b = edges[:, 0:-16:8], edges[:, 16::8]
+    return (0.5 * (a + b)).ravel(), (16.0 / (80.0 * fps * (b - a))).ravel()
+
+
+def _outside(t_s: np.ndarray, speed: np.ndarray, drops, window_s: float) -> tuple[np.ndarray, np.ndarray]:
+    """The speed trace without its points inside a dropout (widened by the envelope window on
+    each side), where the timing is the noise's; all of it if nothing would be left."""
+    keep = np.ones(t_s.size, bool)
+    for d in drops:
+        keep &= (t_s < d.start_s - window_s) | (t_s > d.end_s + window_s)
+    return (t_s[keep], speed[keep]) if keep.any() else (t_s, speed)
 
 
 def _ltc_margins(p):

@@ -135,7 +135,8 @@ def envelope(x, rate_hz, read: Read, kind: str, t_s, speed):
     """(times s, envelope / its median, window W s), every 0.25 ms or W/4."""
     w_s = 1e-3
     if kind == "head":
-        w_s = max(w_s, 2 * float(np.median(read.payload.bits.period_s)))
+        # two cells at the slowest play: a slow head's pulses stand apart, and a shorter window dips between them
+        w_s = max(w_s, 2 * float(np.percentile(read.payload.bits.period_s, 99)))
     n = max(3, int(w_s * rate_hz))
     env = np.sqrt(np.maximum(uniform_filter1d(x * x, size=n), 0.0))
     step = max(1, n // 4)

@@ -40,6 +40,14 @@ def _points(t: np.ndarray, y: np.ndarray, *, least: bool = False) -> list:
     return [[_f(t[k]), _f(y[k])] for k in picks]
 
 
+def _basis_fps(read) -> float | None:
+    """The frame rate a timecode read's speeds are relative to: its rate, else its first candidate."""
+    if read.format != "ltc":
+        return None
+    p = read.payload
+    return p.rate_fps if p.rate_fps is not None else p.rate_fps_candidates[0]
+
+
 def tape_channel_dict(rep: TapeReport, units: str) -> dict:
     """A tape channel's entry in ``channels``: where it is and which family read it."""
     fam = "timecode" if rep.format == "ltc" else "cassette"
@@ -55,6 +63,7 @@ def tape_read_dict(rep: TapeReport, units: str) -> dict:
     return {
         "source": rep.source, "channel": rep.channel, "format": rep.format, "signal_kind": rep.signal_kind,
         "direction": r.direction, "valid": rep.valid, "start_s": _f(r.start_s), "end_s": _f(r.end_s),
+        "speed_basis_fps": _basis_fps(r),
         "speed_mean_rel": _f(rep.speed_mean), "speed_min_rel": _f(rep.speed_min), "speed_max_rel": _f(rep.speed_max),
         "speed_changes": [{"start_s": _f(c.start_s), "end_s": _f(c.end_s), "from_rel": _f(c.from_speed),
                            "to_rel": _f(c.to_speed)} for c in rep.changes],
