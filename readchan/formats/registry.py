@@ -68,7 +68,8 @@ class Format:
 
 
 _FORMATS: dict[str, Format] = {}
-_BUILTIN = ("readchan.formats.iso7811.card", "readchan.formats.ltc.channel", "readchan.formats.kcs.channel")
+_BUILTIN = ("readchan.formats.iso7811.card", "readchan.formats.ltc.channel", "readchan.formats.kcs.channel",
+            "readchan.formats.f2f_bits")
 _BUILTIN_NAMES: set[str] = set()
 _loaded = False
 
