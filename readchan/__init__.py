@@ -7,7 +7,9 @@ The public Python API, four entry points over the package's stages:
   its :class:`Read` s (bits, frame, fields);
 * :func:`inspect` — a capture (or a file) → one :class:`ChannelReport` per channel (front end,
   noise, pulse shape, speed, timing, anomalies, verdict);
-* :func:`synthesize` — a :class:`SynthSpec` → a :class:`SynthResult` (samples and their truth).
+* :func:`synthesize` — a :class:`SynthSpec` → a :class:`SynthResult` (samples and their truth);
+* :func:`decode_many` — many captures (paths, directories, globs) → one :class:`CaptureResult`
+  per capture, in input order, over any :class:`concurrent.futures.Executor`.
 
 Settings are typed objects (:class:`DecodeSettings`, :class:`ConditionSettings`,
 :class:`SynthSpec`); every error readchan raises on purpose is a :class:`ReadchanError` whose
@@ -19,7 +21,7 @@ from __future__ import annotations
 
 import importlib
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, Iterator
 
 __version__ = "0.1.0"
 
@@ -32,6 +34,7 @@ if TYPE_CHECKING:          # for type checkers only; at run time these load lazi
     from readchan.formats.iso7811.framing import Frame
     from readchan.synth import Impairments, SpeedProfile, SynthResult, SynthSpec
     from readchan.linecode.f2f import BitStream
+    from readchan.batch import CaptureResult
 
 # public name → the module that defines it
 _LAZY = {
@@ -45,9 +48,10 @@ _LAZY = {
     "BitStream": "readchan.linecode.f2f",
     "SynthSpec": "readchan.synth", "SynthResult": "readchan.synth", "Impairments": "readchan.synth",
     "SpeedProfile": "readchan.synth",
+    "CaptureResult": "readchan.batch",
 }
 
-__all__ = ["load", "decode", "inspect", "synthesize", "__version__", *_LAZY]
+__all__ = ["load", "decode", "decode_many", "inspect", "synthesize", "__version__", *_LAZY]
 
 
 def __getattr__(name: str) -> Any:
@@ -110,6 +114,24 @@ def decode(path_or_capture: "str | Path | Capture", settings: "DecodeSettings | 
     from readchan.channel import decode_capture
 
     return decode_capture(_capture_of(path_or_capture, rate_hz), _settings_of(settings), channels=channels)
+
+
+def decode_many(paths: Any, *, executor: Any = None, settings: "DecodeSettings | None" = None,
+                channels: list[int] | None = None, rate_hz: float | None = None, **vcd: Any) -> Iterator["CaptureResult"]:
+    """Decode many captures: yields one :class:`CaptureResult` per capture, in input order, each
+    as soon as it and those before it are done.
+
+    ``paths`` is a path or an iterable of paths, directories (their capture files, recursively),
+    globs and ``"-"`` (standard input).  ``executor`` is any :class:`concurrent.futures.Executor`
+    (a thread or process pool, or a cluster's: ``distributed.Client(...).get_executor()``); None
+    decodes one after the other here.  A bad capture gives a result with its one-line ``error``
+    and exit code; the others go on.  ``vcd`` takes ``signal_name``, ``strobe_name``,
+    ``data_name`` and ``window``; see :func:`readchan.batch.decode_many`.
+    """
+    from readchan.batch import decode_many as _decode_many
+
+    return _decode_many(paths, executor=executor, settings=_settings_of(settings), channels=channels,
+                        rate_hz=rate_hz, **vcd)
 
 
 def inspect(path_or_capture: "str | Path | Capture", settings: "DecodeSettings | None" = None, *,
