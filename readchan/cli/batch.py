@@ -119,41 +119,43 @@ class RenderTask:
         return got
 
 
-@dataclass
 class Totals:
-    """What the closing summary counts."""
+    """What the closing summary counts, from one row per capture: (exit code, failed, reads,
+    valid reads, duration in s)."""
 
-    captures: int = 0
-    reads: int = 0
-    valid: int = 0
-    no_data: int = 0
-    errors: int = 0
-    duration_s: float = 0.0
-    codes: list = field(default_factory=list)
+    def __init__(self) -> None:
+        self.rows: list[tuple[int, bool, int, int, float]] = []
 
     def add(self, r: Rendered) -> None:
-        self.captures += 1
-        self.codes.append(r.exit_code)
-        if r.error is not None:
-            self.errors += 1
-            return
-        self.reads += len(r.reads)
-        self.valid += r.valid
-        self.no_data += 0 if r.reads else 1
-        self.duration_s += r.duration_s or 0.0
+        self.rows.append((r.exit_code, r.error is not None, len(r.reads), r.valid, r.duration_s or 0.0))
+
+    def _sum(self, k: int) -> float:
+        return sum(row[k] for row in self.rows)
+
+    @property
+    def codes(self) -> list[int]:
+        return [row[0] for row in self.rows]
+
+    def counts(self) -> dict:
+        """captures, reads, valid, invalid, no data (no read, no error), errors, duration_s."""
+        reads, valid = int(self._sum(2)), int(self._sum(3))
+        errors = int(self._sum(1))
+        no_data = sum(1 for _, failed, n, _, _ in self.rows if not failed and n == 0)
+        return {"captures": len(self.rows), "reads": reads, "valid": valid, "invalid": reads - valid,
+                "no data": no_data, "errors": errors, "duration_s": float(self._sum(4))}
 
 
 def summary_table(t: Totals, elapsed_s: float, jobs: int):
     """The closing summary: one row of counts, the captures' total duration and the time taken."""
     from rich.table import Table
 
-    table = Table(title=f"batch of {t.captures} captures" + (f", {jobs} processes" if jobs > 1 else ""),
+    c = t.counts()
+    table = Table(title=f"batch of {c['captures']} captures" + (f", {jobs} processes" if jobs > 1 else ""),
                   header_style="bold", title_justify="left")
-    cols = ("captures", "reads", "valid", "invalid", "no data", "errors", "duration s", "time s")
-    for c in cols:
-        table.add_column(c, justify="right", no_wrap=True)
-    table.add_row(str(t.captures), str(t.reads), str(t.valid), str(t.reads - t.valid), str(t.no_data), str(t.errors),
-                  f"{t.duration_s:.2f}", f"{elapsed_s:.2f}")
+    for col in ("captures", "reads", "valid", "invalid", "no data", "errors", "duration s", "time s"):
+        table.add_column(col, justify="right", no_wrap=True)
+    counts = [str(c[k]) for k in ("captures", "reads", "valid", "invalid", "no data", "errors")]
+    table.add_row(*counts, f"{c['duration_s']:.2f}", f"{elapsed_s:.2f}")
     return table
 
 
