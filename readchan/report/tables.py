@@ -88,7 +88,7 @@ def bits_rows(source: str, results: list[ChannelResult], *, unmask: bool = False
         for k in range(len(bs)):
             h = bool(hide[k])
             rows.append((source, r.channel, n, k, _num(bs.start_s[k]), _num(bs.period_s[k], 6),
-                         "" if h else _num(bs.margin[k], 4), "" if h else int(bs.flags[k]),
+                         "" if h else _num(bs.margin[k], 6), "" if h else int(bs.flags[k]),
                          "" if h else int(bs.bits[k]), "" if chars[k] < 0 else int(chars[k])))
     return rows
 

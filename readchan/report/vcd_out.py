@@ -11,7 +11,9 @@ Per channel ``c``, in scope ``readchan.ch<c>``:
   and a logic capture its own edges;
 * ``cell`` (wire): toggles at the start of every bit cell (the recovered bit clock);
 * ``bit`` (wire): each bit's value over its cell, ``z`` outside the reads;
-* ``char`` (string): each framed character from its first bit's cell on, empty after the last;
+* ``char`` (string): each framed character from its first bit's cell on, as ``index:character``
+  (``0:%``, ``1:B``, ... ``n:LRC``: the index keeps two equal characters in a row apart, since
+  a VCD records a value only when it changes), empty after the last;
 * ``read`` (string): the format and verdict of each read (``iso-alpha:valid``) over its span.
 
 Time 0 is the capture's first sample (for a VCD input: its tick 0), so the signals line up with
@@ -82,7 +84,7 @@ def _channel_events(ch: ChannelResult, tick_s: float, unmask: bool, reads: list)
             ev.append((tick, 3, "bit", "x" if hide[k] else int(bs.bits[k])))
             c = int(chars[k])
             if c >= 0 and c != last_char and text is not None:
-                ev.append((tick, 4, "char", text[c] if c < len(text) else "LRC"))
+                ev.append((tick, 4, "char", f"{c}:{text[c] if c < len(text) else 'LRC'}"))
             elif c < 0 <= last_char:
                 ev.append((tick, 4, "char", ""))
             last_char = c
