@@ -117,12 +117,16 @@ def _readme_python_blocks() -> list[str]:
 
 def test_readme_python_section_has_examples_of_every_entry_point():
     code = "\n".join(_readme_python_blocks())
-    for name in ("readchan.load(", "readchan.decode(", "readchan.inspect(", "readchan.synthesize("):
+    for name in ("readchan.load(", "readchan.decode(", "readchan.inspect(", "readchan.synthesize(", "readchan.decode_many("):
         assert name in code
 
 
-# what each example must print: the three tracks valid; a masked account number; a valid synthetic read
-README_OUTPUTS = [r"\A(\d forward True [\d.]+ cm/s worst margin [\d.]+\n){3}\Z", r"\A;\d{6}\*+\d{4}=", r"\[True\]\n\Z"]
+# what each example must print: the three tracks valid; a masked account number; a valid synthetic read;
+# the fixtures folder's 7 captures and 10 reads, then a good capture's and a missing one's errors; a batch over
+# a thread pool in input order
+README_OUTPUTS = [r"\A(\d forward True [\d.]+ cm/s worst margin [\d.]+\n){3}\Z", r"\A;\d{6}\*+\d{4}=", r"\[True\]\n\Z",
+                  r"\A7 10\n\[None, 'missing.wav: no such file'\]\n\Z",
+                  r"\Afixtures/three-track-swipe.wav 0 \[True, True, True\]\nfixtures/track2-strobe.vcd 0 \[True\]\n\Z"]
 
 
 @pytest.mark.parametrize("index", range(len(README_OUTPUTS)))
