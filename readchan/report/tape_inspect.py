@@ -91,7 +91,10 @@ def _num(v, fmt: str, unit: str = "") -> str:
 def _rows(rep: TapeReport, units: str) -> list[tuple[str, str, str]]:
     w = rep.worst
     worst = "" if w < 0 else f"worst {rep.unit} {rep.unit_labels[w]} at {rep.unit_t_s[w]:.4f} s"
-    rows = [("speed", "mean / min / max", f"{rep.speed_mean:.4f} / {rep.speed_min:.4f} / {rep.speed_max:.4f} × nominal")]
+    basis = _basis_fps(rep.read)
+    note = f" (of {basis:g} fps: the rate is undecided)" if basis is not None and rep.read.payload.rate_fps is None else ""
+    rows = [("speed", "mean / min / max",
+             f"{rep.speed_mean:.4f} / {rep.speed_min:.4f} / {rep.speed_max:.4f} × nominal{note}")]
     for c in rep.changes:
         rows.append(("", "change", f"{c.from_speed:.3f}× → {c.to_speed:.3f}× over {c.start_s:.3f}–{c.end_s:.3f} s"))
     rows += [("margin", f"least per {rep.unit}", f"{_num(rep.margin_min, '.3f')}  {worst}"),
