@@ -146,3 +146,33 @@ def test_json_and_jsonl_together_are_refused(monkeypatch, capsys):
 ])
 def test_the_batch_exits_with_its_most_severe_capture_code(codes, expected):
     assert batch_exit_code(codes) == expected
+
+
+def test_each_json_line_is_out_before_the_next_capture_is_decoded(monkeypatch, capsys):
+    import readchan.cli.batch as cli_batch
+
+    buf = io.StringIO()
+    seen = []
+    real = cli_batch.decode_source
+
+    def spy(src, opts):
+        seen.append(buf.getvalue().count("\n"))          # lines already written when this capture starts
+        return real(src, opts)
+
+    monkeypatch.setattr(cli_batch, "decode_source", spy)
+    monkeypatch.setattr(sys, "stdout", buf)
+    run(monkeypatch, capsys, "decode", "--jsonl", SCOPE, COMPARATOR, SCOPE)
+    assert seen == [0, 1, 2] and buf.getvalue().count("\n") == 3
+
+
+def test_a_workers_warnings_reach_stderr_as_one_line_each(monkeypatch, capsys, tmp_path):
+    import numpy as np
+    import soundfile as sf
+
+    whole = tmp_path / "whole.wav"
+    sf.write(whole, np.zeros(48_000), 48_000, subtype="PCM_16")
+    cut = tmp_path / "cut.wav"
+    cut.write_bytes(whole.read_bytes()[:50_000])          # the header still declares 96,000 bytes
+    _, _, err = run(monkeypatch, capsys, "decode", "--jsonl", "--jobs", "2", cut, SCOPE)
+    warnings = [line for line in err.splitlines() if line.startswith("readchan: warning:")]
+    assert len(warnings) == 1 and "truncated" in warnings[0]

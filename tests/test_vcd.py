@@ -175,3 +175,15 @@ def test_vcd_out_refuses_an_existing_file_and_several_captures(monkeypatch, caps
     code, _, err = run(monkeypatch, capsys, "decode", "--vcd-out", tmp_path / "new.vcd", FIXTURES / "track2-scope.csv",
                        FIXTURES / "track1-comparator.wav")
     assert code == EXIT_BAD_INPUT and "one capture" in err and not (tmp_path / "new.vcd").exists()
+
+
+def test_f2f_bits_of_a_strobe_and_data_vcd_are_the_chips_bits(monkeypatch, capsys, tmp_path):
+    tc = track_content(T2, track=2)
+    write_strobe_vcd(tmp_path / "chip.vcd", tc.bits, 1e-3)
+    code, out, _ = run(monkeypatch, capsys, "decode", "--json", "--format", "f2f-bits", "--bits-csv",
+                       tmp_path / "bits.csv", tmp_path / "chip.vcd")
+    (read,) = json.loads(out)["reads"]
+    assert read["bits"] == "".join(str(1 - b) for b in tc.bits)          # as on the (active-low) wire
+    assert read["min_margin"] is None and "NaN" not in out                # strict JSON
+    rows = (tmp_path / "bits.csv").read_text().splitlines()[1:]
+    assert len(rows) == tc.bits.size and all(r.split(",")[6] == "" for r in rows)   # a chip's bits: no margin

@@ -116,6 +116,13 @@ def bits_claim(result: ChannelResult) -> bool:
     return bool(result.reads)
 
 
+def _min_margin(bs: BitStream) -> float | None:
+    """The smallest decision margin, or None (no bits, or bits a chip decided: no margins)."""
+    m = np.asarray(bs.margin, float)
+    m = m[np.isfinite(m)]
+    return round(float(m.min()), 4) if m.size else None
+
+
 def bits_read_json(read: Read, unmask: bool = False) -> dict:
     """An ``f2f-bits`` read's JSON (the README's contract): ``bits`` is a string of 0/1 in
     reading order.  Nothing is masked: without framing, no account number can be told."""
@@ -131,7 +138,7 @@ def bits_read_json(read: Read, unmask: bool = False) -> dict:
         "flagged_bits": list(p.flagged),
         "regularity": round(float(p.regularity), 4),
         "mean_period_s": float(f"{p.mean_period_s:.6g}"),
-        "min_margin": None if not len(bs) else round(float(np.min(bs.margin)), 4),
+        "min_margin": _min_margin(bs),
         "start_s": round(float(read.start_s), 6),
         "end_s": round(float(read.end_s), 6),
     }

@@ -96,6 +96,7 @@ class VcdStrobeData:
 
     @property
     def duration_s(self) -> float:
+        """Time of the last strobe edge, seconds from tick 0."""
         return float(self.times_s[-1]) if self.times_s.size else 0.0
 
 
