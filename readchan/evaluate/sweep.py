@@ -97,11 +97,14 @@ PARAMETERS = {
 }
 """Sweepable parameters and the unit of their values."""
 
+MAX_STEPS = 1000
+"""Most steps a sweep takes (a guard against a typing slip, not a tuned figure)."""
+
 
 def linear_values(start: float, stop: float, steps: int) -> tuple[float, ...]:
     """``steps`` evenly spaced values from ``start`` to ``stop`` inclusive."""
-    if not isinstance(steps, int) or not 1 <= steps <= 1000:
-        raise ParameterError(f"steps must be between 1 and 1000, was {steps!r}")
+    if not isinstance(steps, int) or not 1 <= steps <= MAX_STEPS:
+        raise ParameterError(f"steps must be between 1 and {MAX_STEPS}, was {steps!r}")
     for name, v in (("start", start), ("stop", stop)):
         if not math.isfinite(v):
             raise ParameterError(f"sweep {name} must be a finite number, was {v!r}")
@@ -135,8 +138,8 @@ class SweepSpec:
         vals = tuple(self.values)
         if not vals:
             raise ParameterError("give at least one value to sweep")
-        if len(vals) > 1000:
-            raise ParameterError(f"at most 1000 steps, were {len(vals)}")
+        if len(vals) > MAX_STEPS:
+            raise ParameterError(f"at most {MAX_STEPS} steps, were {len(vals)}")
         for v in vals:
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
                 raise ParameterError(f"sweep values must be finite numbers, got {v!r}")

@@ -95,6 +95,7 @@ _SUBTYPE_BYTES = {"PCM_S8": 1, "PCM_U8": 1, "PCM_16": 2, "PCM_24": 3, "PCM_32": 
 
 
 _AUDIO_BLOCK_FRAMES = 1 << 16
+"""Frames per block when a stream is read in blocks (our choice: 0.5 MB per float64 channel)."""
 
 
 def _read_audio(snd: sf.SoundFile, fh, source: str, size: int) -> tuple[np.ndarray, str]:
@@ -144,13 +145,25 @@ def _read_audio(snd: sf.SoundFile, fh, source: str, size: int) -> tuple[np.ndarr
 
 _AUDIO_ERRORS = (sf.SoundFileError, RuntimeError, OSError, ValueError, EOFError)
 
+SALVAGE_BLOCK_FRAMES = (4096, 256, 16, 1)
+"""Block sizes, in frames, of the passes that read a damaged stream up to its fault (our
+choice: each pass 16 times finer, so the last complete frame is reached in four passes)."""
+
+MAX_RIFF_CHUNKS = 10_000
+"""Most chunks walked looking for the sample data of a RIFF or AIFF file (a guard against a
+corrupt chain of chunk sizes, not a tuned figure)."""
+
+RF64_SIZE_MARKER = 0xFFFFFFFF
+"""A 32-bit chunk size of all ones: the real size is in the ds64 chunk (RF64, EBU Tech 3306;
+from memory)."""
+
 
 def _salvage(fh, good: np.ndarray, channels: int) -> np.ndarray:
     """The frames of the file on ``fh`` up to a decoding fault: ``good`` (read before the
-    failing block), then blocks of 4096, 256, 16 and 1 frames, each pass reopening the file and
+    failing block), then blocks of :data:`SALVAGE_BLOCK_FRAMES` frames, each pass reopening the file and
     continuing from what the previous pass read."""
     have = good
-    for frames in (4096, 256, 16, 1):
+    for frames in SALVAGE_BLOCK_FRAMES:
         try:
             fh.seek(0)
             with sf.SoundFile(fh) as snd:
@@ -196,14 +209,14 @@ def _chunk_truncation(p: Path) -> tuple[int, int] | None:
             if fh.read(4) not in forms:
                 return None
             offset = 12
-            for _ in range(10_000):
+            for _ in range(MAX_RIFF_CHUNKS):
                 hdr = fh.read(8)
                 if len(hdr) < 8:
                     return None
                 chunk_id, chunk_size = hdr[:4], int.from_bytes(hdr[4:], order)
                 if chunk_id == data_id:
                     present = size - (offset + 8)
-                    if chunk_size != 0xFFFFFFFF and chunk_size > present:
+                    if chunk_size != RF64_SIZE_MARKER and chunk_size > present:
                         return chunk_size, max(present, 0)
                     return None
                 offset += 8 + chunk_size + (chunk_size & 1)

@@ -74,6 +74,14 @@ OUTLIER_RATIO = 1e3
 
 _OUTLIER_ABSOLUTE = 1e150
 
+OUTLIER_LEVEL_PERCENTILE = 99.9
+"""Percentile of the magnitudes about the median that sets a channel's level for
+:func:`repair_outliers` (at the pulse peaks with a swipe present, at the noise peaks without)."""
+
+OUTLIER_SUBSAMPLE = 1_000_000
+"""Samples (about) the median and the level are taken over: every k-th of a longer channel
+(our choice: a million samples fix both well; the whole channel is still tested)."""
+
 
 class NonPhysicalSampleWarning(UserWarning):
     """A channel holds samples far beyond any level a recording can have (a fault in the file);
@@ -216,13 +224,13 @@ def repair_outliers(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     x = np.asarray(x, dtype=np.float64)
     if x.size < 2:
         return x, np.zeros(0, np.int64)
-    step = max(1, x.size // 1_000_000)
+    step = max(1, x.size // OUTLIER_SUBSAMPLE)
     centre = float(np.median(x[::step]))
     dev = np.abs(x - centre)
     wild = dev >= _OUTLIER_ABSOLUTE
     sane = dev[::step][dev[::step] < _OUTLIER_ABSOLUTE]
     if sane.size:
-        level = float(np.percentile(sane, 99.9))
+        level = float(np.percentile(sane, OUTLIER_LEVEL_PERCENTILE))
         if level > 0:
             wild |= dev > OUTLIER_RATIO * level
     bad = np.flatnonzero(wild)

@@ -26,8 +26,10 @@ TEXT_SUFFIXES = {".csv", ".txt", ".tsv", ".dat", ".asc"}
 _COMMENT_PREFIXES = ("#", ";", "%", "//")
 
 SNIFF_BYTES = 1 << 16
+"""Leading bytes read to tell audio from text and guess the encoding (our choice)."""
 
 _MAX_LEADING_LINES = 10_000
+"""Most lines of comments and metadata before the first data row (a guard, not a tuned figure)."""
 
 _UNIFORM_TOLERANCE = 0.5        # largest time residual allowed, in sample periods
 

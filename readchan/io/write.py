@@ -39,11 +39,13 @@ _AUDIO_KINDS = {
 _CLIPPED_KINDS = ("wav16", "wav24", "flac")
 
 _FLAC_MAX_CHANNELS = 8
+"""Most channels a FLAC stream holds (the FLAC format; from memory)."""
 
 _SUFFIX_KIND = {".wav": ("wav16", "wav24", "wav-float"), ".wave": ("wav16", "wav24", "wav-float"),
                 ".flac": ("flac",), ".csv": ("csv",), ".txt": ("csv",), ".tsv": ("csv",)}
 
 _CSV_CHUNK_ROWS = 65_536
+"""Rows formatted at a time when writing a CSV table (our choice: bounded memory, few writes)."""
 
 
 class ClippingWarning(UserWarning):

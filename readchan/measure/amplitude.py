@@ -17,8 +17,16 @@ from readchan.channel import Read
 
 
 CLIP_TOL = 1e-4
+"""A sample within this fraction of the channel's span from its largest or smallest value sits
+on a flat top (our choice: below one step of a 13-bit converter)."""
 
 CLIP_RUN = 3
+"""Samples in a run at an extreme that make a flat top (clipping); one or two are a peak
+(common practice)."""
+
+SMOOTH_TRANSITIONS = 31
+"""Transitions in the running median of the amplitude along the swipe (our choice: a single
+weak or strong pulse does not move it)."""
 
 
 @dataclass(frozen=True)
@@ -29,7 +37,7 @@ class Amplitude:
     ----------
     t_s : time of each transition, seconds.
     peak : |peak| of each transition on the wide-band signal.
-    smooth : running median of ``peak`` over 31 transitions (amplitude along the swipe).
+    smooth : running median of ``peak`` over :data:`SMOOTH_TRANSITIONS` transitions (amplitude along the swipe).
     median_peak, min_peak, max_peak : median, smallest and largest |peak|.
     positive_median, negative_median : medians of the positive and negative peaks' magnitudes.
     asymmetry_pct : 100·(P − N)/(P + N).
@@ -68,7 +76,7 @@ def measure_amplitude(tr, w, rate_hz, r: Read, clipped) -> Amplitude:
     idx = np.clip(tr.index, 0, w.size - 1)
     sgn = np.sign(tr.amplitude)
     peak = np.abs(w[idx])
-    smooth = median_filter(peak, size=min(31, peak.size), mode="nearest") if peak.size else peak
+    smooth = median_filter(peak, size=min(SMOOTH_TRANSITIONS, peak.size), mode="nearest") if peak.size else peak
     pos = np.abs(w[idx[sgn > 0]])
     neg = np.abs(w[idx[sgn < 0]])
     p = float(np.median(pos)) if pos.size else 0.0

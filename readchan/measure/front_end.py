@@ -26,6 +26,24 @@ GUARD_S = 0.01
 MIN_QUIET_S = 0.005
 """Least quiet time for a noise measurement; below it the noise comes from 1 ms blocks."""
 
+BETWEEN_GUARD_INTERVALS = 0.4
+"""Samples nearer a transition than this many median intervals are not "between pulses" for
+the hum fit (our choice: alternate-sign neighbours' tails largely cancel mid-gap; further in,
+a pulse's own flank would read as hum)."""
+
+FLOOR_BELOW_STEPS = 0.6
+"""A noise RMS under this many converter steps (with less hum than a step) spans only a level
+or two and is estimated from the levels' counts instead (uniform-error model, Widrow & Kollár,
+*Quantization Noise*, 2008: step/√12 ≈ 0.29 step is the floor; our choice of 0.6 leaves room
+for a level or two of Gaussian noise)."""
+
+MAINS_HZ = (50.0, 60.0)
+"""The two mains systems (IEC 60038); a fitted hum is assigned the nearer."""
+
+DEFAULT_CELL_S = 1e-3
+"""Typical interval (s) the noise estimate assumes when a channel has fewer than two
+transitions (our choice: a card swiped at about 30 cm/s at 75 bpi has a 1.1 ms cell)."""
+
 
 @dataclass(frozen=True)
 class FrontEnd:
@@ -110,7 +128,7 @@ def measure_front_end(x, rate_hz, result, quiet, highpass_hz, units):
     tr = result.transitions
     # Hum is fitted wherever the baseline can be seen: the quiet stretches and, inside the
     # swipes, the middle of the gaps between pulses (see fit_hum_wide).
-    between = between_pulses_mask(x.size, rate_hz, tr, guard=0.4) if len(tr) >= 2 else np.ones(x.size, bool)
+    between = between_pulses_mask(x.size, rate_hz, tr, guard=BETWEEN_GUARD_INTERVALS) if len(tr) >= 2 else np.ones(x.size, bool)
     hum, hum_from = fit_hum_wide(x, cond, rate_hz, quiet, between, highpass_hz, result.channel)
     if hum is not None:
         cond = condition(x - hum.waveform(x.size, rate_hz), rate_hz, cs, channel=result.channel)
@@ -119,7 +137,7 @@ def measure_front_end(x, rate_hz, result, quiet, highpass_hz, units):
     if hum is not None:
         wander = float(np.ptp((x - hum.waveform(x.size, rate_hz) - cond.dc_offset) - w))
     quiet_s = float(quiet.sum()) / rate_hz
-    cell_s = float(np.median(np.diff(tr.times_s))) if len(tr) >= 2 else 1e-3
+    cell_s = float(np.median(np.diff(tr.times_s))) if len(tr) >= 2 else DEFAULT_CELL_S
     step = quantisation_step(x)
     est = robust_noise(w, rate_hz, quiet, cell_s=cell_s, step=step) if quiet_s >= MIN_QUIET_S else None
     if est is not None and est.used_s >= MIN_QUIET_S:
@@ -128,14 +146,15 @@ def measure_front_end(x, rate_hz, result, quiet, highpass_hz, units):
         noise, how = noise_rms(w, rate_hz), "blocks"
         est = None
     floored = False
-    if step is not None and noise < 0.6 * step and (hum is None or hum.amplitude < step):
+    if step is not None and noise < FLOOR_BELOW_STEPS * step and (hum is None or hum.amplitude < step):
         # the noise spans a level or two: its RMS on the grid misjudges it; estimate the noise
         # before the converter from how the samples fall on the levels, and add step/√12
         sigma = None if est is None else quantised_sigma(x, est.mask, step, rate_hz)
         total = math.hypot(sigma, step / math.sqrt(12.0)) if sigma is not None else step / math.sqrt(12.0)
         if total > noise:
             noise, floored = total, True
-    mains = None if hum is None else (50.0 if abs(hum.freq_hz - 50.0) < abs(hum.freq_hz - 60.0) else 60.0)
+    low, high = MAINS_HZ
+    mains = None if hum is None else (low if abs(hum.freq_hz - low) < abs(hum.freq_hz - high) else high)
     fe = FrontEnd(result.channel, "head", units, rate_hz, x.size / rate_hz, cond.dc_offset, wander,
                   None if hum is None else hum.freq_hz, mains, None if hum is None else hum.amplitude,
                   noise, how, quiet_s, len(tr),

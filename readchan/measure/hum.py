@@ -19,6 +19,34 @@ from readchan.frontend.condition import ConditionSettings, HumFit, condition, fi
 EDGE_S = 0.05
 """The hum is fitted on quiet samples at least this far from the capture's ends (seconds)."""
 
+HUM_MIN_LEVEL = 0.02
+"""Least hum amplitude, as a fraction of the capture's peak, that counts as hum when the quiet
+time holds at least :data:`HUM_MIN_CYCLES` cycles of 50 Hz (the default of
+:func:`readchan.frontend.condition.fit_hum`)."""
+
+HUM_MIN_LEVEL_SHORT = 0.05
+"""The same with less quiet time: a short fit mistakes more of the noise for hum (our choice)."""
+
+HUM_MIN_CYCLES = 3
+"""Cycles of the lower mains frequency (50 Hz) of quiet time for the lower hum level."""
+
+BETWEEN_ONLY_FRACTION = 0.1
+"""Below this fraction of the fitted samples from between pulses the hum is reported as fitted
+on the quiet samples alone."""
+
+HUM_FIT_SAMPLES = 20_000
+"""At most this many samples (evenly thinned) go into the refinement's least squares (our
+choice: ample for six coefficients; keeps the frequency search cheap)."""
+
+FREQ_STEP_HZ = 0.01
+"""Step of the refinement's frequency grid, Hz."""
+
+FREQ_STEPS = 10
+"""The refinement's grid reaches ± this many steps (±0.1 Hz) around the first fit's frequency."""
+
+HUM_COEFFICIENTS = 6
+"""Coefficients of the hum model: cosine and sine of harmonics 1 to 3."""
+
 
 def highpass_gain(f_hz: np.ndarray, corner_hz: float | None) -> np.ndarray:
     """Gain of the zero-phase baseline high-pass (2nd-order Butterworth run both ways):
@@ -46,15 +74,15 @@ def fit_hum_wide(x, cond, rate_hz, quiet, between, highpass_hz, channel):
     inner = where.copy()
     inner[:edge] = False
     inner[n - edge:] = False
-    level = 0.02 if n_quiet >= 3 * rate_hz / 50.0 else 0.05
+    level = HUM_MIN_LEVEL if n_quiet >= HUM_MIN_CYCLES * rate_hz / 50.0 else HUM_MIN_LEVEL_SHORT
     first = fit_hum(cond.signal, rate_hz, inner if inner.sum() >= 0.5 * where.sum() else where, min_level=level)
     if first is None:
         return None, None
-    hum_from = "quiet" if int((where & ~quiet).sum()) < 0.1 * int(where.sum()) else "quiet and between pulses"
+    hum_from = "quiet" if int((where & ~quiet).sum()) < BETWEEN_ONLY_FRACTION * int(where.sum()) else "quiet and between pulses"
     hum = _with_gain(first, 1.0 / highpass_gain(_harmonic_hz(first.freq_hz), highpass_hz))
     cs = ConditionSettings(highpass_hz=highpass_hz or None)
     idx = np.flatnonzero(where)
-    idx = idx[:: max(1, idx.size // 20000)]
+    idx = idx[:: max(1, idx.size // HUM_FIT_SAMPLES)]
     for _ in range(HUM_PASSES):
         # high-pass with the hum taken out (no ringing), then the hum put back as the
         # high-pass passes a steady sinusoid: the high-passed capture without the end ringing
@@ -91,8 +119,8 @@ def _refine_hum(t: np.ndarray, target: np.ndarray, f0: float, highpass_hz) -> Hu
         coef, *_ = np.linalg.lstsq(A, target, rcond=None)
         return float(np.sum((target - A @ coef) ** 2)), coef
 
-    df = 0.01
-    grid = f0 + df * np.arange(-10, 11)
+    df = FREQ_STEP_HZ
+    grid = f0 + df * np.arange(-FREQ_STEPS, FREQ_STEPS + 1)
     res = np.array([rss(f)[0] for f in grid])
     k = int(np.clip(np.argmin(res), 1, grid.size - 2))
     rm, r0, rp = res[k - 1:k + 2]
@@ -101,5 +129,5 @@ def _refine_hum(t: np.ndarray, target: np.ndarray, f0: float, highpass_hz) -> Hu
     r, coef = rss(f)
     if r > r0:
         f, (r, coef) = float(grid[k]), rss(float(grid[k]))
-    sigma = math.sqrt(r / max(t.size - 6, 1))
+    sigma = math.sqrt(r / max(t.size - HUM_COEFFICIENTS, 1))
     return _with_gain(HumFit(f, 0.0, coef, sigma), 1.0 / highpass_gain(_harmonic_hz(f), highpass_hz))

@@ -19,6 +19,33 @@ from readchan.linecode.f2f import BOUNDARY
 from readchan.measure.timing import Timing
 from readchan.units import METRES_PER_INCH
 
+TRAIN_NEIGHBOURS = 40
+"""Neighbours on each side in the Lorentzian clocking-zero train of
+:func:`_lorentzian_train_width` (our choice; the tails of farther neighbours alternate in sign
+and largely cancel)."""
+
+TRAIN_GRID_POINTS = 2001
+"""Points over the middle cell on which the train's half width is found (a step of 1/2000
+cell; our choice)."""
+
+ALIGN_CORE_CELLS = 0.35
+"""Half width, in cells, of the middle of the pulse the re-alignment fits (:func:`_mean_pulse`;
+our choice: the peak and both flanks, short of the neighbours' half of the cell)."""
+
+ALIGN_MIN_SCALE = 0.2
+"""Pulses fitting the mean at less than this scale are not re-aligned (a missed or merged pulse;
+our choice)."""
+
+ALIGN_MAX_SHIFT_CELLS = 0.15
+"""Largest re-alignment of a pulse, in cells (our choice)."""
+
+MIN_PW50_INTERVALS = 8
+"""Fewest intervals a read needs for a pulse-width measurement (our choice)."""
+
+SPLINE_REACH_CELLS = 0.7
+"""A pulse is used only when this many cells on each side of its peak lie inside the capture
+(the resampling grid reaches ±0.5 cell, the re-alignment ±0.15 more)."""
+
 
 @dataclass(frozen=True)
 class PulseShape:
@@ -87,8 +114,8 @@ def _lorentzian_train_width(pw50_cell: np.ndarray) -> np.ndarray:
     """Half-amplitude width (cells) of the middle pulse of an endless train of Lorentzian
     pulses of alternating sign one cell apart (the clocking zeros), for isolated-pulse widths
     ``pw50_cell``: the neighbours' tails narrow it (by 4 % at 0.3 cell, 12 % at 0.5 cell)."""
-    x = np.linspace(-0.5, 0.5, 2001)
-    k = np.arange(-40, 41)
+    x = np.linspace(-0.5, 0.5, TRAIN_GRID_POINTS)
+    k = np.arange(-TRAIN_NEIGHBOURS, TRAIN_NEIGHBOURS + 1)
     out = np.empty(pw50_cell.size)
     for i, p in enumerate(pw50_cell):
         y = np.sum(((-1.0) ** k)[:, None] / (1.0 + (2.0 * (x[None, :] - k[:, None]) / p) ** 2), axis=0)
@@ -122,10 +149,10 @@ def _mean_pulse(spline, t_pk: np.ndarray, per: np.ndarray, sign: np.ndarray, rat
                 iterations: int = 3) -> np.ndarray:
     """Mean of the pulses resampled on ``PULSE_GRID`` (cells) around their peaks, each first
     re-aligned to the mean by least squares (a Gauss–Newton step per iteration on the model
-    pulse_i ≈ a_i·m(x − δ_i), over the middle ±0.35 cell), so that the detector's timing jitter
+    pulse_i ≈ a_i·m(x − δ_i), over the middle ±:data:`ALIGN_CORE_CELLS` cell), so that the detector's timing jitter
     does not widen the mean."""
     shift = np.zeros(t_pk.size)
-    core = np.abs(PULSE_GRID) <= 0.35
+    core = np.abs(PULSE_GRID) <= ALIGN_CORE_CELLS
     dx = PULSE_GRID[1] - PULSE_GRID[0]
     for it in range(iterations + 1):
         tt = (t_pk + shift * per)[:, None] + PULSE_GRID[None, :] * per[:, None]
@@ -136,10 +163,10 @@ def _mean_pulse(spline, t_pk: np.ndarray, per: np.ndarray, sign: np.ndarray, rat
         dm = np.gradient(m, dx)
         mc, dmc, pc = m[core], dm[core], pulses[:, core]
         a = pc @ mc / (mc @ mc)
-        ok = a > 0.2
+        ok = a > ALIGN_MIN_SCALE
         d = np.zeros(t_pk.size)
         d[ok] = -(pc[ok] @ dmc) / (a[ok] * (dmc @ dmc))     # P ≈ a·m − a·δ·m'
-        shift = np.clip(shift + d, -0.15, 0.15)
+        shift = np.clip(shift + d, -ALIGN_MAX_SHIFT_CELLS, ALIGN_MAX_SHIFT_CELLS)
     return m
 
 
@@ -150,7 +177,7 @@ def measure_pulse_shape(tr, bs, w, rate_hz, timing: Timing, r: Read) -> PulseSha
     narrow the width.  The width of that mean is then corrected for its neighbours' tails
     (:func:`isolated_pw50_cell`)."""
     ratio = bs.ratio
-    if ratio.size < 8:
+    if ratio.size < MIN_PW50_INTERVALS:
         return None
     cand = _full_cell_pulses(ratio)
     # prefer the clocking zeros (outside the framed characters) when there are enough
@@ -165,7 +192,8 @@ def measure_pulse_shape(tr, bs, w, rate_hz, timing: Timing, r: Read) -> PulseSha
         cand, bit_of = cand[pick], bit_of[pick]
     per = bs.period_s[np.clip(bit_of, 0, bs.period_s.size - 1)]
     t_pk = tr.times_s[cand]
-    inside = ((t_pk - 0.7 * per) * rate_hz > 1) & ((t_pk + 0.7 * per) * rate_hz < w.size - 2)
+    inside = (((t_pk - SPLINE_REACH_CELLS * per) * rate_hz > 1)
+              & ((t_pk + SPLINE_REACH_CELLS * per) * rate_hz < w.size - 2))
     if not inside.any():
         return None
     cand, per, t_pk = cand[inside], per[inside], t_pk[inside]

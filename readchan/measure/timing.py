@@ -20,6 +20,20 @@ from readchan.units import speed_from_period_cm_s
 HIST_EDGES = np.linspace(0.0, 2.0, 81)
 """Bin edges of the normalised-interval histogram, in bit cells."""
 
+SLOPE_HALF_MIN_BITS = 8
+"""Least half-window, in bits, of the sliding straight-line fit of speed against time."""
+
+SLOPE_HALF_MAX_BITS = 200
+"""Largest half-window, in bits, of the sliding fit."""
+
+SLOPE_WINDOWS_PER_READ = 16
+"""Between those bounds the half-window is the read's bits over this (our choice: the fit
+follows a swipe's acceleration and deceleration, and averages the bit-to-bit jitter)."""
+
+MARGIN_PERCENTILE = 1.0
+"""Percentile of the decision margin reported beside its minimum (the 1st: a margin the read
+keeps on all but one bit in a hundred)."""
+
 
 @dataclass(frozen=True)
 class Timing:
@@ -102,7 +116,7 @@ def measure_timing(r: Read) -> Timing:
     mean_v = vmin = vmax = mean_a = max_a = change = None
     if density is not None and n >= 2:
         speed = speed_from_period_cm_s(per, density)
-        half = int(max(8, min(n // 16, 200)))
+        half = int(max(SLOPE_HALF_MIN_BITS, min(n // SLOPE_WINDOWS_PER_READ, SLOPE_HALF_MAX_BITS)))
         fit, slope = _sliding_slope(t, speed, half)
         accel = slope / 100.0
         mean_v = float(np.mean(speed))
@@ -117,13 +131,13 @@ def measure_timing(r: Read) -> Timing:
     m = bs.margin
     k_min = int(np.argmin(m)) if n else 0
     order = np.argsort(m, kind="stable")
-    k_p1 = int(order[int(0.01 * (n - 1))]) if n else 0
+    k_p1 = int(order[int(MARGIN_PERCENTILE / 100.0 * (n - 1))]) if n else 0
     shift = _peak_shift(ratio)
     t_period = float(np.median(per)) if n else math.nan
     return Timing(density, t.copy(), per.copy(), speed, fit, accel, mean_v, vmin, vmax, mean_a, max_a, change,
                   ratio_t.copy(), ratio.copy(), HIST_EDGES.copy(), counts,
                   m.copy(), float(m[k_min]) if n else math.nan, k_min, float(t[k_min]) if n else math.nan,
-                  float(np.percentile(m, 1)) if n else math.nan, k_p1, float(t[k_p1]) if n else math.nan,
+                  float(np.percentile(m, MARGIN_PERCENTILE)) if n else math.nan, k_p1, float(t[k_p1]) if n else math.nan,
                   None if shift is None else shift * t_period, shift)
 
 
