@@ -63,6 +63,10 @@ def _waveform(ax, rep: TapeReport, x: np.ndarray, rate_hz: float) -> None:
     ax.legend(loc="lower right", fontsize=7)
 
 
+SPEED_MIN_SPAN = 0.05
+"""The speed panel spans at least ±5 % of the mean speed (a steady tape's scatter stays flat)."""
+
+
 def _speed(ax, rep: TapeReport) -> None:
     ax.plot(rep.speed_t_s, rep.speed, ".", ms=2, color="tab:green", label="play speed")
     for i, c in enumerate(rep.changes):
@@ -74,6 +78,11 @@ def _speed(ax, rep: TapeReport) -> None:
         ax.axhline(hi, color="tab:red", lw=1, ls=":", label=f"limit {hi:g}×")
     if lo >= 0.67 * bottom:
         ax.axhline(lo, color="tab:red", lw=1, ls=":", label=f"limit {lo:g}×")
+    # at least ±SPEED_MIN_SPAN around the data: a steady speed would otherwise be drawn at the
+    # scale of its measurement scatter, under an offset label
+    mid, half = 0.5 * (top + bottom), max(0.5 * (top - bottom) * 1.15, SPEED_MIN_SPAN * 0.5 * (top + bottom))
+    ax.set_ylim(mid - half, mid + half)
+    ax.ticklabel_format(axis="y", useOffset=False)
     ax.set_ylabel("speed (× nominal)")
     ax.set_xlabel("time (s)")
     ax.set_title(f"play speed: mean {rep.speed_mean:.4f}×, {bottom:.3f}–{top:.3f}×", fontsize=9)

@@ -39,10 +39,10 @@ def _verdict(ok: bool) -> Text:
 
 
 def ltc_table(reads: list[Read], title: str | None = None) -> Table:
-    """One row per timecode read: frames, rate, first and last timecode, speed range, verdict."""
+    """One row per timecode read: frames, rate, speed range, events, verdict (the first and last
+    timecode follow in :func:`ltc_span_lines`, so the table fits a terminal)."""
     t = Table(title=title, header_style="bold", title_justify="left")
-    for col in ("read", "ch", "format", "direction", "frames", "fps", "first", "last", "speed ×", "events",
-                "verdict", "time s"):
+    for col in ("read", "ch", "direction", "frames", "fps", "speed ×", "events", "verdict", "time s"):
         t.add_column(col, no_wrap=True)
     for n, r in enumerate(reads):
         p = r.payload
@@ -51,10 +51,20 @@ def ltc_table(reads: list[Read], title: str | None = None) -> Table:
             fps = "/".join(f"{v:g}" for v in p.rate_fps_candidates) + "?"
         speeds = [f.speed for f in p.frames]
         sp = f"{min(speeds):.2f}–{max(speeds):.2f}" if speeds else ""
-        t.add_row(str(n), str(r.channel), r.format, r.direction, str(len(p.frames)), fps,
-                  p.frames[0].timecode if p.frames else "", p.frames[-1].timecode if p.frames else "", sp,
+        t.add_row(str(n), str(r.channel), r.direction, str(len(p.frames)), fps, sp,
                   str(len(p.events)), _verdict(r.valid), f"{r.start_s:.3f}–{r.end_s:.3f}")
     return t
+
+
+def ltc_span_lines(reads: list[Read]) -> list[Text]:
+    """One line per timecode read: its first and last timecode in capture order."""
+    lines = []
+    for n, r in enumerate(reads):
+        f = r.payload.frames
+        if f:
+            flags = " drop frame" if f[0].drop_frame else ""
+            lines.append(Text(f"read {n}  {f[0].timecode} → {f[-1].timecode}  ({len(f)} frames{flags})"))
+    return lines
 
 
 def ltc_event_lines(reads: list[Read]) -> list[Text]:
@@ -74,13 +84,13 @@ def ltc_event_lines(reads: list[Read]) -> list[Text]:
 def kcs_table(reads: list[Read], title: str | None = None) -> Table:
     """One row per cassette read: baud, bytes, framing errors, dropouts, leader, speed, verdict."""
     t = Table(title=title, header_style="bold", title_justify="left")
-    for col in ("read", "ch", "format", "baud", "bytes", "framing errors", "dropouts", "leader s", "speed ×",
+    for col in ("read", "ch", "baud", "bytes", "framing errors", "dropouts", "leader s", "speed ×",
                 "verdict", "time s"):
         t.add_column(col, no_wrap=True)
     for n, r in enumerate(reads):
         p = r.payload
         errs = ",".join(map(str, p.framing_errors[:8])) + ("…" if len(p.framing_errors) > 8 else "")
-        t.add_row(str(n), str(r.channel), r.format, str(p.baud), str(len(p.data)), errs or "none",
+        t.add_row(str(n), str(r.channel), str(p.baud), str(len(p.data)), errs or "none",
                   str(len(p.dropouts)), f"{p.leader_s:.2f}", f"{p.speed:.3f}", _verdict(r.valid),
                   f"{r.start_s:.3f}–{r.end_s:.3f}")
     return t
@@ -91,11 +101,11 @@ def print_tape_reads(console: Console, source: str, reads: list[Read]) -> None:
     ltc = [r for r in reads if r.format == "ltc"]
     kcs = [r for r in reads if r.format == "kcs"]
     if ltc:
-        console.print(ltc_table(ltc, title=source))
-        for line in ltc_event_lines(ltc):
+        console.print(ltc_table(ltc, title=f"{source}: linear timecode"))
+        for line in ltc_span_lines(ltc) + ltc_event_lines(ltc):
             console.print(line, soft_wrap=True)
     if kcs:
-        console.print(kcs_table(kcs, title=source))
+        console.print(kcs_table(kcs, title=f"{source}: Kansas City cassette data"))
         for n, r in enumerate(kcs):
             console.print(Text(f"read {n}  {len(r.payload.data)} bytes"))
             for line in hex_dump(r.payload.data):
