@@ -30,6 +30,29 @@ class Noise:
 QUANT_BLOCK_S = 0.004
 """Stretch of quiet samples over which the baseline is taken as constant between two levels."""
 
+QUANT_MIN_SAMPLES = 256
+"""Fewest quiet samples :func:`quantised_sigma` estimates from (our choice)."""
+
+QUANT_MIN_BLOCK_SAMPLES = 16
+"""Fewest samples in one constant-baseline block of :func:`quantised_sigma` (our choice)."""
+
+QUANT_MIN_BLOCKS = 4
+"""Fewest blocks :func:`quantised_sigma` estimates from (our choice)."""
+
+QUANT_LEVELS = 4
+"""Levels counted on each side of a block's median level; farther samples count on the last
+(the estimate serves noise under 0.6 step, for which 3.5 steps away is beyond 5.8 σ)."""
+
+SIGMA_GRID_STEPS = (0.02, 2.0, 100)
+"""The σ grid of :func:`quantised_sigma`: from, to (in converter steps) and points, spaced
+geometrically (our choice; the estimate serves noise under 0.6 step)."""
+
+MU_GRID_POINTS = 201
+"""Baseline offsets tried per block, across one step (1/200-step spacing; our choice)."""
+
+LOG_FLOOR = 1e-12
+"""Smallest level probability taken into the log-likelihood (keeps log finite)."""
+
 
 def quantised_sigma(x: np.ndarray, use: np.ndarray, step: float, rate_hz: float) -> float | None:
     """Standard deviation of the noise before a converter of step ``step``, from the raw quiet
@@ -41,9 +64,9 @@ def quantised_sigma(x: np.ndarray, use: np.ndarray, step: float, rate_hz: float)
     from scipy.special import ndtr
 
     idx = np.flatnonzero(use)
-    if idx.size < 256:
+    if idx.size < QUANT_MIN_SAMPLES:
         return None
-    block = max(16, int(QUANT_BLOCK_S * rate_hz))
+    block = max(QUANT_MIN_BLOCK_SAMPLES, int(QUANT_BLOCK_S * rate_hz))
     # blocks of consecutive used samples
     brk = np.flatnonzero(np.diff(idx) > 1) + 1
     runs = np.split(idx, brk)
@@ -52,17 +75,17 @@ def quantised_sigma(x: np.ndarray, use: np.ndarray, step: float, rate_hz: float)
     for run in runs:
         for a in range(0, run.size - block + 1, block):
             lv = np.round((x[run[a:a + block]] - origin) / step).astype(np.int64)
-            d = np.clip(lv - int(np.median(lv)), -4, 4)
-            counts.append(np.bincount(d + 4, minlength=9))
-    if len(counts) < 4:
+            d = np.clip(lv - int(np.median(lv)), -QUANT_LEVELS, QUANT_LEVELS)
+            counts.append(np.bincount(d + QUANT_LEVELS, minlength=2 * QUANT_LEVELS + 1))
+    if len(counts) < QUANT_MIN_BLOCKS:
         return None
     n = np.asarray(counts, float)                                   # (blocks, 9 levels)
-    k = np.arange(-4, 5, dtype=float)
-    s_grid = np.geomspace(0.02, 2.0, 100)
-    mu = np.linspace(-0.5, 0.5, 201)
+    k = np.arange(-QUANT_LEVELS, QUANT_LEVELS + 1, dtype=float)
+    s_grid = np.geomspace(*SIGMA_GRID_STEPS)
+    mu = np.linspace(-0.5, 0.5, MU_GRID_POINTS)
     z_hi = (k[None, None, :] + 0.5 - mu[None, :, None]) / s_grid[:, None, None]
     z_lo = (k[None, None, :] - 0.5 - mu[None, :, None]) / s_grid[:, None, None]
-    p = np.clip(ndtr(z_hi) - ndtr(z_lo), 1e-12, 1.0)               # (σ, μ, level)
+    p = np.clip(ndtr(z_hi) - ndtr(z_lo), LOG_FLOOR, 1.0)               # (σ, μ, level)
     ll = np.einsum("bk,smk->sbm", n, np.log(p))                    # (σ, block, μ)
     total = ll.max(axis=2).sum(axis=1)
     return float(s_grid[int(np.argmax(total))] * step)

@@ -21,6 +21,11 @@ from readchan.report.render import track_keys, verdict_keys
 TRACE_POINTS = 64
 """Points of the speed and amplitude traces in the JSON output."""
 
+BOUNDARY_ZONE_CELL = (0.675, 0.825)
+"""Normalised intervals r counted "near 0.75" in the report: where the decision margin
+|r − 0.75| / 0.25 is below the verdict's 0.3 limit (0.75 ∓ 0.3·0.25;
+:data:`readchan.measure.verdict.LIMITS`)."""
+
 
 # ---------------------------------------------------------------------------------------------
 # JSON
@@ -266,9 +271,10 @@ def _histogram_line(ratio: np.ndarray) -> str:
     """Counts of r in the half-cell band, the boundary zone and the full-cell band."""
     if ratio.size == 0:
         return "–"
-    half = int(np.sum(ratio < 0.675))
-    zone = int(np.sum((ratio >= 0.675) & (ratio < 0.825)))
-    full = int(np.sum(ratio >= 0.825))
+    lo, hi = BOUNDARY_ZONE_CELL
+    half = int(np.sum(ratio < lo))
+    zone = int(np.sum((ratio >= lo) & (ratio < hi)))
+    full = int(np.sum(ratio >= hi))
     return (f"{half} half (median {np.median(ratio[ratio < 0.75]) if np.any(ratio < 0.75) else float('nan'):.3f}), "
             f"{zone} near 0.75, {full} full (median "
             f"{np.median(ratio[ratio >= 0.75]) if np.any(ratio >= 0.75) else float('nan'):.3f})")
