@@ -185,7 +185,8 @@ SIGNAL = typer.Option(Kind.auto, "--signal", help="Signal the capture holds: hea
                                                     "or auto-detect.")
 SIGNAL_OLD = typer.Option(None, "--kind", hidden=True, help="Old spelling of --signal.")
 TRACK = typer.Option(None, min=1, max=3, help="ISO track the channel holds (for the density).")
-RATE_HZ = typer.Option(None, "--rate-hz", help="Sample rate in Hz: for CSV files with no time column, and to sample a VCD comparator at (default: from its timescale).")
+RATE_HZ = typer.Option(None, "--rate-hz", help="Sample rate in Hz: for CSV files with no time column, and to "
+                       "sample a VCD comparator at (default: from its timescale).")
 RATE_OLD = typer.Option(None, "--rate", hidden=True, help="Old spelling of --rate-hz.")
 NOTCH = typer.Option("auto", help="Mains hum removal: auto, off, or a notch frequency in Hz.")
 LOWPASS = typer.Option(None, "--lowpass-hz", help="Optional low-pass corner in Hz.")
