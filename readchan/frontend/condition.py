@@ -1,7 +1,20 @@
 """Stage 1, conditioning: remove DC offset and slow baseline, optional low-pass and mains notch.
 
+Input: one channel's samples (any units) and the sample rate (Hz); :class:`ConditionSettings`.
+Output: :class:`Conditioned` (the float64 signal, baseline at 0).
+
 All filters are zero-phase (``scipy.signal.sosfiltfilt`` / ``filtfilt``), so they move no
 pulse peak in time: timing recovery sees the pulses where the head produced them.
+
+Memory: the DC and the baseline are taken out of one float64 copy of the samples in place (the
+baseline is rendered and subtracted a few thousand samples at a time), so conditioning without
+a notch or low-pass holds the input and one full-length array.  The signal stays float64, not
+float32: a 20 Hz high-pass at 48 kHz has its poles within 3·10⁻³ of the unit circle, where
+float32's 6·10⁻⁸ rounding, recirculated over the filter's memory, is no longer negligible
+against a quiet channel's noise; the detector's sub-sample parabola and the timing loop need
+the signal to the precision the capture has; and decoding must give the same reads it gave
+(16-bit samples are exact in float32, and are kept so while they are read in blocks,
+:mod:`readchan.io.blocks`).
 """
 
 from __future__ import annotations
@@ -109,7 +122,7 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
     y = x - dc
     if settings.highpass_hz:
         _check_corner("highpass_hz", settings.highpass_hz, nyq)
-        y = y - baseline(y, rate_hz, settings.highpass_hz)
+        remove_baseline(y, rate_hz, settings.highpass_hz)
     for f in settings.notch_hz:
         _check_corner("notch frequency", f, nyq)
         for h in (1, 2, 3):
@@ -145,21 +158,53 @@ def baseline(y: np.ndarray, rate_hz: float, corner_hz: float) -> np.ndarray:
     the corner, and the low-pass keeps only what is below the corner, so the result matches
     the direct filter (within 0.5 % of a sinusoidal wander; tests/test_condition.py).
     """
+    out = np.zeros(y.size)
+    _apply_baseline(y, rate_hz, corner_hz, out, sign=1.0)
+    return out
+
+
+def remove_baseline(y: np.ndarray, rate_hz: float, corner_hz: float) -> np.ndarray:
+    """``y`` with its :func:`baseline` subtracted in place (no full-length baseline array is
+    made: it is rendered block by block); returns ``y``."""
+    _apply_baseline(y, rate_hz, corner_hz, y, sign=-1.0)
+    return y
+
+
+_RENDER_ROWS = 4096
+"""Blocks of the baseline rendered at a time (a few hundred thousand samples at 48 kHz)."""
+
+
+def _apply_baseline(y: np.ndarray, rate_hz: float, corner_hz: float, out: np.ndarray, *, sign: float) -> None:
+    """Add (``sign`` 1, into zeros: the baseline itself) or subtract (``sign`` −1) the baseline
+    of ``y`` to ``out`` in place; the same values as rendering it whole, row block by row block."""
     block = max(1, int(rate_hz / (40.0 * corner_hz)))
     nb = y.size // block
     sos = sps.butter(2, corner_hz, btype="lowpass", fs=rate_hz / block, output="sos")
     if block == 1 or nb < 64:
         sos = sps.butter(2, corner_hz, btype="lowpass", fs=rate_hz, output="sos")
-        return sps.sosfiltfilt(sos, y, padlen=min(y.size - 1, int(3 * rate_hz / corner_hz)))
+        slow_all = sps.sosfiltfilt(sos, y, padlen=min(y.size - 1, int(3 * rate_hz / corner_hz)))
+        if sign > 0:
+            out += slow_all
+        else:
+            out -= slow_all
+        return
     means = y[: nb * block].reshape(nb, block).mean(axis=1)
     slow = sps.sosfiltfilt(sos, means, padlen=min(means.size - 1, 120))
     # back to every sample: the line through each block centre with the slope to the next
     slope = np.diff(slow, append=slow[-1]) / block
     offset = np.arange(block) - 0.5 * (block - 1)
-    out = np.empty(y.size)
-    out[: nb * block] = (slow[:, None] + slope[:, None] * offset).ravel()
-    out[nb * block:] = slow[-1]
-    return out
+    rows = out[: nb * block].reshape(nb, block)
+    for a in range(0, nb, _RENDER_ROWS):
+        b = min(nb, a + _RENDER_ROWS)
+        line = slow[a:b, None] + slope[a:b, None] * offset
+        if sign > 0:
+            rows[a:b] += line
+        else:
+            rows[a:b] -= line
+    if sign > 0:
+        out[nb * block:] += slow[-1]
+    else:
+        out[nb * block:] -= slow[-1]
 
 
 def signal_band_hz(x: np.ndarray, rate_hz: float, *, ratio: float = 4.0) -> float | None:
@@ -241,9 +286,14 @@ class HumFit:
         """
         table_n = 8192
         table = _hum_basis(np.arange(table_n) / (table_n * self.freq_hz), self.freq_hz) @ self.coef
-        phase = np.arange(n, dtype=float)
-        phase *= self.freq_hz / rate_hz * table_n
-        return table[phase.astype(np.int64) & (table_n - 1)]
+        out = np.empty(n)
+        step = self.freq_hz / rate_hz * table_n
+        chunk = 1 << 18                  # phases a quarter-million samples at a time: no full-length temporaries
+        for a in range(0, n, chunk):
+            phase = np.arange(a, min(n, a + chunk), dtype=float)
+            phase *= step
+            np.take(table, phase.astype(np.int64) & (table_n - 1), out=out[a:a + chunk])
+        return out
 
 
 def _hum_basis(t: np.ndarray, f: float, harmonics: int = 3) -> np.ndarray:

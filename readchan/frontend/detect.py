@@ -20,6 +20,12 @@ The detector
 
 Logic signal (a comparator's two-level output, or a flux waveform): transitions are the
 crossings of the mid level with hysteresis, timed by linear interpolation.
+
+Input: one channel's conditioned samples (float64, capture units) and the sample rate (Hz).
+Output: :class:`Transitions`.  Memory: the detector holds one full-length float64 array of
+its own at a time (the magnitudes the candidates are found in) besides its input; the
+signal is not converted to float32, since the candidates' order and the parabola's sub-sample
+times would then round differently from the reads decoding has given.
 """
 
 from __future__ import annotations
@@ -104,8 +110,10 @@ def noise_rms(x: np.ndarray, rate_hz: float) -> float:
     nb = x.size // block
     if nb < 4:
         return float(np.std(x))
-    r = np.sqrt(np.mean(x[: nb * block].reshape(nb, block) ** 2, axis=1))
-    return float(np.percentile(r, 10))
+    rows = x[: nb * block].reshape(nb, block)
+    step = max(1, (1 << 18) // block)     # squared a quarter-million samples at a time, not all at once
+    ms = np.concatenate([np.mean(rows[a:a + step] ** 2, axis=1) for a in range(0, nb, step)])
+    return float(np.percentile(np.sqrt(ms), 10))
 
 
 def quantisation_step(x: np.ndarray) -> float:
@@ -189,7 +197,9 @@ def _lobe_peaks(x: np.ndarray, h: float, floor: float) -> tuple[np.ndarray, np.n
     minimum (or maximum) of each stretch between peaks tells (``np.minimum.reduceat``).
     """
     a = np.abs(x)
-    idx, _ = sps.find_peaks(np.where(a > floor, a, 0.0))   # zeroing below the floor: fewer maxima
+    a[a <= floor] = 0.0                                    # zeroing below the floor: fewer maxima
+    idx, _ = sps.find_peaks(a)
+    del a
     if idx.size == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int8)
     sgn = np.where(x[idx] > 0, 1, -1).astype(np.int8)
