@@ -16,7 +16,8 @@ For each capture the script prints, from ``--repeat`` fresh processes each (medi
 
 * the reference: a plain read of the file (``soundfile.read``, float64) plus one 8th-order
   Butterworth ``sosfilt`` pass over it, timed in its own fresh process right before each decode;
-* the decode (``load_capture`` + ``decode_capture`` today): cold (the first decode in a fresh
+* the decode (``--api stream``, the default: :func:`readchan.stream.decode_file`; ``--api whole``:
+  ``load_capture`` + ``decode_capture``): cold (the first decode in a fresh
   process, imports done, so any compilation or cache load counts) and warm (a second decode in
   the same process), samples per second, and the ratio to the reference;
 * peak RSS of the decoding process (``resource.getrusage``, ``ru_maxrss``);
@@ -31,7 +32,7 @@ Threads: the workers run with ``OMP_NUM_THREADS=1`` (and the BLAS equivalents) u
 The machine is shared: the load average (``/proc/loadavg``) is printed before and after.
 
 Run: ``OMP_NUM_THREADS=1 python scripts/bench_stream.py [--minutes 10] [--repeat 5] [--long]
-[--only idle,bench] [--fresh-cache]``.
+[--only idle,bench] [--fresh-cache] [--api whole]``.
 """
 
 from __future__ import annotations
@@ -123,11 +124,17 @@ def worker_reference(path: str) -> dict:
             "rss_mb": _rss_mb()}
 
 
-def _decode(path: str):
+def _decode(path: str) -> list:
+    """The reads of ``path``: streamed (:func:`readchan.stream.decode_file`), or with
+    ``BENCH_API=whole`` loaded whole and decoded (``load_capture`` + ``decode_capture``)."""
+    if os.environ.get("BENCH_API", "stream") == "stream":
+        from readchan.stream import decode_file
+
+        return decode_file(path)
     from readchan.channel import decode_capture
     from readchan.io.capture import load_capture
 
-    return decode_capture(load_capture(path))
+    return [r for res in decode_capture(load_capture(path)) for r in res.reads]
 
 
 def worker_count(path: str) -> dict:
@@ -146,15 +153,15 @@ def worker_decode(path: str) -> dict:
     """Cold (first) and warm (second) decode of ``path`` in this fresh process."""
     import readchan.channel  # noqa: F401  (imports are not part of the decode)
     import readchan.io.capture  # noqa: F401
+    import readchan.stream  # noqa: F401
 
     t0 = time.perf_counter()
-    results = _decode(path)
+    reads = _decode(path)
     cold = time.perf_counter() - t0
     rss_cold = _rss_mb()
     t0 = time.perf_counter()
-    results = _decode(path)
+    reads = _decode(path)
     warm = time.perf_counter() - t0
-    reads = [r for res in results for r in res.reads]
     good = sum(1 for r in reads if r.valid and r.frame.text == T1)
     return {"cold_s": cold, "warm_s": warm, "rss_mb": _rss_mb(), "rss_cold_mb": rss_cold,
             "reads": len(reads), "good": good}
@@ -217,6 +224,8 @@ def main() -> None:
     ap.add_argument("--only", default="", help="comma-separated captures to run (idle, bench, continuous, long)")
     ap.add_argument("--fresh-cache", action="store_true",
                     help="an empty numba cache directory for every decode, so the cold decode includes compilation")
+    ap.add_argument("--api", choices=("stream", "whole"), default="stream",
+                    help="stream: readchan.stream.decode_file (default); whole: load_capture + decode_capture")
     ap.add_argument("--json", type=Path, default=None, help="also write the figures to this JSON file")
     ap.add_argument("--worker", nargs=2, metavar=("KIND", "PATH"), help=argparse.SUPPRESS)
     args = ap.parse_args()
@@ -234,7 +243,8 @@ def main() -> None:
     for var in THREAD_VARS:
         env.setdefault(var, "1")
     env["PYTHONPATH"] = str(ROOT) + os.pathsep + env.get("PYTHONPATH", "")
-    print(f"threads: OMP_NUM_THREADS={env['OMP_NUM_THREADS']}; load before: {_load()}")
+    env["BENCH_API"] = args.api
+    print(f"decode: {args.api}; threads: OMP_NUM_THREADS={env['OMP_NUM_THREADS']}; load before: {_load()}")
     rows = []
     with tempfile.TemporaryDirectory() as tmp:
         cache_root = Path(tmp) / "numba-cache" if args.fresh_cache else None

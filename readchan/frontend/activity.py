@@ -30,7 +30,7 @@ the variance of a block of white noise scatters by √(2/1000) ≈ 4.5 %."""
 ACTIVE_RATIO = 1.5
 """A block is active when its variance exceeds this × the noise floor's (ten times the scatter
 of a noise block's variance, :data:`ENERGY_BLOCK_S`)."""
-GUARD_S = 0.25
+GUARD_S = 0.1
 """Quiet kept on either side of the active blocks, s: more than the segmenter's 20 ms gap, the
 longest bit cell (20 ms) and the settling of the conditioning filters' tails."""
 MERGE_GAP_S = 0.5

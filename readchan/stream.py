@@ -1,0 +1,143 @@
+"""Streaming decode of a capture file: the active stretches decoded one at a time, so that memory
+does not grow with the capture's length and idle time costs one cheap pass.
+
+Input: the path of an audio capture (WAV, FLAC, ...), :class:`readchan.channel.DecodeSettings`
+and the channels to decode.
+Output: :class:`readchan.results.Read` s with capture times and absolute sample positions,
+yielded as they are found (:func:`iter_reads`) or listed (:func:`decode_file`).
+
+How: one pass over the file in blocks (:mod:`readchan.io.blocks`, float32: exact for 16-bit
+PCM) feeds the activity gate (:mod:`readchan.frontend.activity`), which gives each channel's
+active spans.  Each span, padded by :data:`SETTLE_S` of the capture on either side so that the
+conditioning filters have settled before the first pulse, is read from the file and decoded as
+a stretch of its own (:func:`readchan.channel.decode_channel`), its reads moved to capture time.
+A span longer than :data:`PIECE_S` is cut at its quietest 20 ms blocks into pieces that overlap
+by :data:`OVERLAP_S` (longer than any swipe: a card passes in 1.7 s at 5 cm/s); a piece keeps the
+reads that start in its own part, so a read across a cut is decoded whole once.
+
+A capture of at most :data:`WHOLE_S` is decoded whole, exactly as :func:`readchan.channel.decode_capture`
+decodes it; so is one whose stretches hold a tape read (timecode, cassette data: one read runs
+the whole tape, which stretches would split).  Per stretch, the front end's decisions (noise
+floor, hum, band) are taken from that stretch: the reads are the same (text, validity,
+direction, bits) as a whole-file decode's, their times agree to rounding, but the channel-wide
+records of a whole-file decode (``ChannelResult``: transitions, segments, status) are not made.
+A streamed read's ``segment.start``/``stop`` count transitions within its stretch.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import replace
+from typing import Iterator
+
+import numpy as np
+
+from readchan.channel import DecodeSettings, decode_capture, decode_channel
+from readchan.frontend.activity import Activity
+from readchan.io.blocks import audio_info, iter_blocks, read_span
+from readchan.io.capture import load_capture
+from readchan.results import Read
+
+WHOLE_S = 120.0
+"""Captures up to this long (s) are decoded whole."""
+SETTLE_S = 0.15
+"""Capture read on either side of an active span, s: the conditioning filters' start-up has
+died out by then (the 20 Hz baseline low-pass, Butterworth Q = 0.707, decays with a time
+constant of 1/(2π·20·0.707) ≈ 11 ms: e⁻¹³ after 0.15 s)."""
+PIECE_S = 30.0
+"""Longest stretch decoded at once, s (a piece: 1.4 M samples at 48 kHz, about 80 MB at the peak)."""
+OVERLAP_S = 2.5
+"""Capture two neighbouring pieces of a long span share, s: longer than a card swipe."""
+GATE_BLOCK = 1 << 18
+"""Frames read at a time for the gate's pass."""
+
+
+def _pieces(span: tuple[int, int], energies: np.ndarray, block: int, rate_hz: float) -> list[tuple[int, int]]:
+    """The owned parts ``(lo, hi)`` (samples) a span is cut into, cut at its quietest block
+    within ±2 s of every :data:`PIECE_S`."""
+    a, b = span
+    piece = int(PIECE_S * rate_hz)
+    if b - a <= piece:
+        return [span]
+    cuts = [a]
+    reach = int(2.0 * rate_hz) // block
+    while b - cuts[-1] > piece:
+        nominal = (cuts[-1] + piece) // block
+        lo, hi = max(nominal - reach, cuts[-1] // block + 1), min(nominal + reach, energies.size - 1)
+        k = lo + int(np.argmin(energies[lo:hi + 1])) if hi >= lo else nominal
+        cuts.append(min(b, max(cuts[-1] + block, k * block)))
+    cuts.append(b)
+    return [(cuts[i], cuts[i + 1]) for i in range(len(cuts) - 1) if cuts[i + 1] > cuts[i]]
+
+
+def _at_capture_time(r: Read, lo: int, rate_hz: float) -> Read:
+    """A read decoded from a stretch starting at sample ``lo``, moved to capture time."""
+    off = lo / rate_hz
+    seg = replace(r.segment, start_s=r.segment.start_s + off, end_s=r.segment.end_s + off) if r.segment else None
+    tr = replace(r.transitions, times_s=r.transitions.times_s + off, index=r.transitions.index + lo) \
+        if r.transitions is not None else None
+    bits = replace(r.bits, start_s=r.bits.start_s + off) if r.bits is not None else None
+    return replace(r, segment=seg, transitions=tr, bits=bits)
+
+
+class _TapeRead(Exception):
+    """A stretch held a tape read: the capture is decoded whole instead."""
+
+
+def _gate(path: str, chans: list[int], rate_hz: float) -> list[Activity]:
+    gates = [Activity(rate_hz) for _ in chans]
+    for blk in iter_blocks(path, GATE_BLOCK, dtype="float32"):
+        for g, c in zip(gates, chans):
+            g.feed(blk.samples[:, c])
+    return gates
+
+
+def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz: float,
+                   settings: DecodeSettings) -> Iterator[Read]:
+    settle, overlap = int(SETTLE_S * rate_hz), int(OVERLAP_S * rate_hz)
+    for g, c in zip(_gate(path, chans, rate_hz), chans):
+        energies = g.energies()
+        for span in g.spans():
+            parts = _pieces(span, energies, g.block, rate_hz)
+            margin = settle if len(parts) == 1 else overlap
+            for own_lo, own_hi in parts:
+                lo, hi = max(0, own_lo - margin), min(n, own_hi + margin)
+                x = np.ascontiguousarray(read_span(path, lo, hi)[:, c])
+                res = decode_channel(x, rate_hz, settings, channel=c, n_channels=n_channels, source=path)
+                del x
+                if res.family != "card":
+                    raise _TapeRead
+                for r in res.reads:
+                    r = _at_capture_time(r, lo, rate_hz)
+                    if len(parts) == 1 or own_lo <= r.start_s * rate_hz < own_hi:
+                        yield r
+
+
+def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSettings(),
+               channels: list[int] | None = None, *, whole_s: float = WHOLE_S) -> Iterator[Read]:
+    """The reads of the capture at ``path``, channel by channel and in time order within a
+    channel, each as soon as its stretch is decoded; see the module docstring.  ``whole_s``:
+    captures up to this long (s) are decoded whole."""
+    p = os.fspath(path)
+    info = audio_info(p)
+    chans = list(range(info.channels)) if channels is None else list(channels)
+    if info.frames <= whole_s * info.rate_hz:
+        for res in decode_capture(load_capture(p), settings, chans):
+            yield from res.reads
+        return
+    found: list[Read] = []
+    try:
+        for r in _stretch_reads(p, chans, info.channels, info.frames, info.rate_hz, settings):
+            found.append(r)
+            yield r
+    except _TapeRead:
+        # a tape read spans the tape: decoded whole, its reads after those already given
+        seen = {(r.channel, round(r.start_s, 6)) for r in found}
+        for res in decode_capture(load_capture(p), settings, chans):
+            yield from (r for r in res.reads if (r.channel, round(r.start_s, 6)) not in seen)
+
+
+def decode_file(path: str | os.PathLike, settings: DecodeSettings = DecodeSettings(),
+                channels: list[int] | None = None, *, whole_s: float = WHOLE_S) -> list[Read]:
+    """Every read of the capture at ``path`` (:func:`iter_reads`), by channel and time."""
+    return sorted(iter_reads(path, settings, channels, whole_s=whole_s), key=lambda r: (r.channel, r.start_s))
