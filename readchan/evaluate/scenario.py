@@ -70,6 +70,7 @@ class Scenario:
     reference: bool = False
 
     def __post_init__(self) -> None:
+        # the ranges below are guards against absurd parameters, not tuned figures
         if self.track not in TRACKS:
             raise ParameterError(f"track must be 1, 2 or 3, was {self.track!r}")
         if self.profile not in PROFILES:

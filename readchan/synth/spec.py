@@ -43,6 +43,7 @@ class TrackContent:
     label: str = ""
 
     def __post_init__(self) -> None:
+        # the ranges below are guards against absurd parameters, not tuned figures
         if not math.isfinite(self.density_bpi) or not 1.0 <= self.density_bpi <= 10_000:
             raise ParameterError(f"density_bpi must be between 1 and 10000 bpi, was {self.density_bpi!r}")
         if np.asarray(self.bits).size == 0:
@@ -91,6 +92,9 @@ class Impairments:
     edge_pulses: bool = False
 
     def __post_init__(self) -> None:
+        # (value, lowest, highest): guards against absurd parameters, not tuned figures.  Jitter
+        # stays under a quarter cell so that two transitions half a cell apart, each moved by
+        # it, never swap.
         checks = {
             "density_error": (self.density_error, -0.5, 0.5),
             "jitter": (self.jitter, 0.0, 0.24),
@@ -149,6 +153,7 @@ class SynthSpec:
     front_end: FrontEnd = field(default_factory=FrontEnd)
 
     def __post_init__(self) -> None:
+        # the ranges below are guards against absurd parameters, not tuned figures
         if not self.tracks:
             raise ParameterError("give at least one track")
         if not math.isfinite(self.rate_hz) or not 1_000 <= self.rate_hz <= 100e6:
