@@ -138,7 +138,13 @@ def measure_front_end(x, rate_hz, result, quiet, highpass_hz, units):
         wander = float(np.ptp((x - hum.waveform(x.size, rate_hz) - cond.dc_offset) - w))
     quiet_s = float(quiet.sum()) / rate_hz
     cell_s = float(np.median(np.diff(tr.times_s))) if len(tr) >= 2 else DEFAULT_CELL_S
-    step = quantisation_step(x)
+    rec = result.front_end
+    # the converter step is a front-end decision: taken from the decode's record when its head
+    # front end ran (the same grid test), measured here otherwise (logic, silent channels)
+    if rec is not None and rec.kind == "head" and not rec.silent:
+        step = rec.quant_step or None
+    else:
+        step = quantisation_step(x)
     est = robust_noise(w, rate_hz, quiet, cell_s=cell_s, step=step) if quiet_s >= MIN_QUIET_S else None
     if est is not None and est.used_s >= MIN_QUIET_S:
         noise, how = est.rms, "quiet"

@@ -79,7 +79,19 @@ def channel_dict(ch: ChannelReport) -> dict:
         "undersampled": None if st is None else st.sampling.undersampled,
         "half_cell_samples": None if st is None else _f(st.sampling.half_cell_samples),
         "pw50_samples": None if st is None else _f(st.sampling.pw50_samples),
+        "decoder_front_end": _decoder_front_end(ch.result.front_end),
     }
+
+
+def _decoder_front_end(rec) -> dict | None:
+    """What the decoder's front end decided for the channel (:class:`readchan.frontend.head.FrontEndRecord`):
+    the hum it took out, the band limits it set, the converter step and clipping, in Hz and
+    capture units."""
+    if rec is None:
+        return None
+    return {"hum_hz": _f(rec.hum_hz), "hum_fitted": rec.hum_fitted, "band_hz": _f(rec.band_hz),
+            "lowpass_hz": _f(rec.lowpass_hz), "highpass_hz": _f(rec.highpass_hz),
+            "quant_step": _f(rec.quant_step), "clipped": rec.clipped, "silent": rec.silent}
 
 
 def _noise_provenance(fe) -> dict:
