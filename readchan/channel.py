@@ -26,10 +26,6 @@ from readchan.frontend.condition import MIN_NOTCH_HZ, ConditionSettings, check_f
 from readchan.io.capture import Capture, NonPhysicalSampleWarning, check_rate_range, describe_outliers, display_path, repair_outliers
 from readchan.results import ChannelResult, Read
 
-# names other modules still import from here (their homes are the stage modules)
-from readchan.formats.iso7811.card import MIN_CLOCKING_ZEROS, MIN_REGULARITY, reads_from  # noqa: E402,F401
-from readchan.frontend.head import CLIPPED_FRACTION, between_pulses_mask, only_white_noise, quiet_mask  # noqa: E402,F401
-
 __all__ = ["ChannelResult", "DecodeSettings", "Notch", "Read", "SignalKind", "decode_capture", "decode_channel"]
 
 

@@ -7,7 +7,7 @@ import pytest
 from scipy import signal as sps
 
 from readchan.frontend.condition import baseline, condition, fit_hum, signal_band_hz
-from readchan.channel import between_pulses_mask
+from readchan.frontend.head import between_pulses_mask
 from readchan.frontend.detect import detect_head
 
 RATE = 48_000.0

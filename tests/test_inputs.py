@@ -428,7 +428,7 @@ def test_a_channel_of_white_noise_or_a_constant_is_reported_as_no_activity_witho
 @pytest.mark.parametrize("track, text", [(1, TEXT), (2, ";9912345678901239=29121010000000000?")])
 def test_a_weak_swipe_in_a_long_noise_capture_is_not_taken_for_noise(track, text):
     # 6 dB SNR, below where decoding fails (README, Benchmarks): the swipe still raises the RMS
-    from readchan.channel import only_white_noise
+    from readchan.frontend.head import only_white_noise
 
     for seed in range(3):
         cap, _ = synth_capture({track: text}, imp=Impairments(snr_db=6.0), seed=seed, lead_s=1.0)
@@ -436,7 +436,7 @@ def test_a_weak_swipe_in_a_long_noise_capture_is_not_taken_for_noise(track, text
 
 
 def test_band_limited_noise_is_decoded_in_full_not_called_white():
-    from readchan.channel import only_white_noise
+    from readchan.frontend.head import only_white_noise
 
     x = np.convolve(np.random.default_rng(2).normal(size=20_000), np.ones(4) / 4, "same")
     assert not only_white_noise(x, 48_000.0)

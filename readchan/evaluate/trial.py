@@ -13,7 +13,8 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from readchan.channel import DecodeSettings, decode_channel, reads_from
+from readchan.channel import DecodeSettings, decode_channel
+from readchan.formats.iso7811.card import reads_from
 from readchan.errors import ParameterError
 from readchan.evaluate.runner import run_jobs
 from readchan.evaluate.scenario import Scenario, _content

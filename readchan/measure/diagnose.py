@@ -72,7 +72,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from readchan.channel import ChannelResult, DecodeSettings, Read, decode_channel, quiet_mask
+from readchan.channel import ChannelResult, DecodeSettings, Read, decode_channel
+from readchan.frontend.head import quiet_mask
 from readchan.io.capture import Capture, repair_outliers
 from readchan.measure.amplitude import Amplitude, clipped_samples, measure_amplitude
 from readchan.measure.anomalies import Anomaly, bit_char, find_anomalies

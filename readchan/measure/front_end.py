@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from readchan.channel import between_pulses_mask
+from readchan.frontend.head import between_pulses_mask
 from readchan.frontend.condition import ConditionSettings, condition
 from readchan.frontend.detect import noise_rms
 from readchan.measure.hum import fit_hum_wide

@@ -17,7 +17,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from readchan.channel import CLIPPED_FRACTION as CLIPPED, MIN_CLOCKING_ZEROS, MIN_REGULARITY
+from readchan.formats.iso7811.card import MIN_CLOCKING_ZEROS, MIN_REGULARITY
+from readchan.frontend.head import CLIPPED_FRACTION as CLIPPED
 from readchan.frontend.detect import Transitions, clipped_fraction, pulse_intervals
 from readchan.frontend.sampling import Sampling, channel_sampling
 
