@@ -1,5 +1,9 @@
 """Is the capture sampled finely enough to resolve its pulses and their timing?
 
+Input: the sample rate (Hz) and the bit periods (s) and PW50s (s) of a channel's reads, or a
+synthesis spec's cell (m), PW50 (m) and fastest speed (cm/s).
+Output: :class:`Sampling` (samples per half cell and per PW50, undersampled or not).
+
 A peak is placed between samples by a parabola through the three around it, and a pulse's
 width by the half-amplitude crossings either side of it; both need the pulse to span a few
 samples.  Below about 3 samples per half cell the timing of a transition is quantised to a

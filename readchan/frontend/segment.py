@@ -1,5 +1,8 @@
 """Stage 3, segmentation: split a channel's transitions into reads (swipes).
 
+Input: :class:`readchan.frontend.detect.Transitions`.
+Output: :class:`Segment` s (index ranges into the transitions, start and end times in s).
+
 A capture may hold several swipes separated by quiet stretches.  A new read starts where
 the gap between transitions exceeds ``gap_factor`` times the local typical interval (the
 running median of the neighbouring intervals) and ``min_gap_s``, or exceeds ``max_gap_s``

@@ -1,5 +1,8 @@
 """Writing output files safely: one atomic writer for captures, plots and sweep curves.
 
+Input: a target path and the bytes or file a caller writes to a temporary path.
+Output: the target file, complete, or no change at all.
+
 Every file readchan writes goes through :func:`atomic_output`, which makes these rules hold
 everywhere:
 

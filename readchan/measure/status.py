@@ -1,5 +1,8 @@
 """What a channel holds, and, when it gave no read, why.
 
+Input: a channel's samples, transitions, segments, reads and the segments that gave no read.
+Output: :class:`ChannelStatus` (state, reason, recording, clipping, sampling).
+
 Every channel is accounted for: it gave reads; or it shows no activity above the noise; or it
 has transitions whose intervals are not F2F-regular (noise, a damaged stripe); or it holds a
 regular F2F recording in which no start sentinel was found in either direction; or the

@@ -1,4 +1,7 @@
 """The inspect report's renderings: :class:`readchan.measure.diagnose.ChannelReport` → a JSON object
+
+Input: :class:`readchan.measure.diagnose.ChannelReport` s.
+Output: JSON-ready dicts and rich text on a console.
 (:func:`channel_dict`, :func:`read_dict`) and a rich text report (:func:`print_inspect`).
 
 Rendered from the reports, not computed here; account numbers are masked unless ``unmask``.

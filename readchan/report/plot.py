@@ -1,5 +1,8 @@
 """Diagnostic plots of inspected reads (matplotlib, Agg canvas: no display needed).
 
+Input: :class:`readchan.measure.diagnose.ChannelReport` s and a target path.
+Output: a PNG, PDF or SVG file (through :mod:`readchan.io.atomic`).
+
 Each read gets five panels, legible for a capture of 10,000 bits:
 
 1. the waveform over the read, min/max-decimated to the panel's width, with the read's span,

@@ -1,5 +1,8 @@
 """Rendering of decode results: JSON-ready dictionaries and rich tables.
 
+Input: :class:`readchan.results.ChannelResult` s and their :class:`readchan.results.Read` s.
+Output: JSON-ready dicts (through each format's renderer), rich tables and text lines, exit codes.
+
 Account numbers are masked in every output unless the caller passes ``unmask=True``
 (at most the first 6 and last 4 digits shown; PCI DSS v3.2.1 requirement 3.3).
 """

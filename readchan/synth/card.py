@@ -1,4 +1,8 @@
-"""Card content for the synthesizer: text or raw bits per track, with clocking zeros."""
+"""Card content for the synthesizer: text or raw bits per track, with clocking zeros.
+
+Input: a track's text (or raw bits), its track number or character format, density (bpi).
+Output: :class:`readchan.synth.TrackContent` (the recorded bits, clocking zeros included).
+"""
 
 from __future__ import annotations
 

@@ -1,5 +1,8 @@
 """Readback pulse models of an inductive head, in space (metres along the medium).
 
+Input: positions along the medium (m) and head geometry (gap, spacing, transition length in m).
+Output: pulse shapes (per unit flux change) and their PW50 (m).
+
 An inductive head sees the time derivative of the flux it links.  By reciprocity the
 voltage for one isolated transition passing at speed ``v`` is ``V(t) = v · p(x)`` with
 ``x = v·t`` the head's displacement from the transition and ``p`` the spatial pulse

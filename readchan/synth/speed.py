@@ -1,5 +1,8 @@
 """Swipe speed profiles: speed as a function of position along the card, in cm/s.
 
+Input: a mean speed (cm/s), a profile name and its variation.
+Output: :class:`SpeedProfile` (speed at each fraction of the card, cm/s).
+
 A profile maps the fraction ``u = x / length`` of the card that has passed the head
 (0 at the leading edge, 1 at the trailing edge) to speed.  Position-to-time then follows
 from ``t(x) = ∫ dx / v(x)``, integrated numerically on a fine grid.

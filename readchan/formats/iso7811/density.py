@@ -1,5 +1,9 @@
 """Which track a read came from, decided from the physics the capture shows.
 
+Input: a card read's bits (leading zeros), its clocking zeros' pulse widths over the bit cell,
+the frame's format and length, the channel layout.
+Output: :class:`TrackEvidence` (the track, its basis, the votes, ambiguity).
+
 A read's bit period gives its speed only through the recording density: 210 bpi on tracks 1
 and 3, 75 bpi on track 2 (ISO/IEC 7811-2).  Tracks 2 and 3 share the BCD character set, so
 the characters alone do not tell them apart, and a wrong guess makes every speed 2.8× wrong.

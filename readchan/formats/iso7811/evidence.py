@@ -1,5 +1,9 @@
 """Physical evidence of damage in a read, and the characters it touches.
 
+Input: a read's :class:`readchan.frontend.detect.Transitions` and
+:class:`readchan.linecode.f2f.BitStream`.
+Output: per-bit evidence arrays (:func:`damage_evidence`) and the damaged characters of a frame.
+
 Parity and LRC cannot see two characters that carry the same pair of bit flips: every parity
 bit and every LRC column still balance (the ISO code is a product of two single-parity checks,
 whose smallest undetectable pattern is 2 characters × 2 columns).  Damage that makes such a

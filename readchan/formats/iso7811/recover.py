@@ -1,5 +1,9 @@
 """Recovery guided by parity and LRC: revise the least confident bit decisions of a failed read.
 
+Input: a failed :class:`readchan.formats.iso7811.framing.Frame`, its bits and their decision
+margins, the character format.
+Output: :class:`Recovery` (candidates searched, those passing, the accepted frame or None).
+
 When a read fails its checks, the bits whose decisions came closest to the half-cell/full-cell
 boundary (smallest timing margin, see :mod:`readchan.linecode.f2f`) are the likeliest to be wrong.
 Two mechanisms use that, both bounded by the timing evidence:
