@@ -68,7 +68,7 @@ class DecodeSettings:
     loop_gain : gain α of the bit-period tracking loop.
     auto_band : band-limit the signal to the pulse rate found by a first detection pass: a
         low-pass (when none is set) and a high-pass above the baseline corner (see
-        :func:`readchan.frontend.detect.auto_lowpass_hz` and :func:`readchan.frontend.detect.auto_highpass_hz`).
+        :func:`readchan.frontend.band.auto_lowpass_hz` and :func:`readchan.frontend.band.auto_highpass_hz`).
     recover : on a failed read, search the least confident bit decisions for the unique
         reading that passes every check (:mod:`readchan.formats.iso7811.recover`).
     field_check : a read that claims an ISO/IEC 7813 layout (track 1 format code B, or track 2)

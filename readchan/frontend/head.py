@@ -19,8 +19,8 @@ from typing import Protocol
 import numpy as np
 
 from readchan.frontend.condition import ConditionSettings, Conditioned, condition, fit_hum, refine, signal_band_hz
-from readchan.frontend.detect import (Transitions, auto_highpass_hz, auto_lowpass_hz, clipped_fraction, detect_head,
-                                      pulse_width_s, quantisation_step)
+from readchan.frontend.band import auto_highpass_hz, auto_lowpass_hz, pulse_width_s
+from readchan.frontend.detect import Transitions, clipped_fraction, detect_head, quantisation_step
 from readchan.frontend.segment import Segment, segment
 
 

@@ -22,7 +22,8 @@ import numpy as np
 
 from readchan.formats.iso7811.card import MIN_CLOCKING_ZEROS, MIN_REGULARITY
 from readchan.frontend.head import CLIPPED_FRACTION as CLIPPED
-from readchan.frontend.detect import Transitions, clipped_fraction, pulse_intervals
+from readchan.frontend.band import pulse_intervals
+from readchan.frontend.detect import Transitions, clipped_fraction
 from readchan.frontend.sampling import Sampling, channel_sampling
 
 __all__ = ["ChannelStatus", "Skipped", "channel_status", "STATES"]
