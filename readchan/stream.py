@@ -71,11 +71,14 @@ def _pieces(span: tuple[int, int], energies: np.ndarray, block: int, rate_hz: fl
 
 
 def _at_capture_time(r: Read, lo: int, rate_hz: float) -> Read:
-    """A read decoded from a stretch starting at sample ``lo``, moved to capture time."""
+    """A read decoded from a stretch starting at sample ``lo``, moved to capture time.  Its
+    transitions are copied out of the stretch's (they are views of them), so that a kept read
+    does not keep every noise peak of its stretch in memory."""
     off = lo / rate_hz
     seg = replace(r.segment, start_s=r.segment.start_s + off, end_s=r.segment.end_s + off) if r.segment else None
-    tr = replace(r.transitions, times_s=r.transitions.times_s + off, index=r.transitions.index + lo) \
-        if r.transitions is not None else None
+    t = r.transitions
+    tr = replace(t, times_s=t.times_s + off, index=t.index + lo, amplitude=t.amplitude.copy(),
+                 envelope=t.envelope.copy(), flags=t.flags.copy()) if t is not None else None
     bits = replace(r.bits, start_s=r.bits.start_s + off) if r.bits is not None else None
     return replace(r, segment=seg, transitions=tr, bits=bits)
 
