@@ -19,6 +19,7 @@ the signal to the precision the capture has; and decoding must give the same rea
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -132,7 +133,7 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
                 y = sps.filtfilt(b, a, y, padlen=min(y.size - 1, 3 * max(len(a), len(b))))
     if settings.lowpass_hz:
         _check_corner("lowpass_hz", settings.lowpass_hz, nyq)
-        sos = sps.butter(4, settings.lowpass_hz, btype="lowpass", fs=rate_hz, output="sos")
+        sos = _butter(4, settings.lowpass_hz, "lowpass", rate_hz)
         y = sps.sosfiltfilt(sos, y)
     return Conditioned(signal=np.ascontiguousarray(y), rate_hz=float(rate_hz), dc_offset=dc, channel=channel)
 
@@ -179,9 +180,9 @@ def _apply_baseline(y: np.ndarray, rate_hz: float, corner_hz: float, out: np.nda
     of ``y`` to ``out`` in place; the same values as rendering it whole, row block by row block."""
     block = max(1, int(rate_hz / (40.0 * corner_hz)))
     nb = y.size // block
-    sos = sps.butter(2, corner_hz, btype="lowpass", fs=rate_hz / block, output="sos")
+    sos = _butter(2, corner_hz, "lowpass", rate_hz / block)
     if block == 1 or nb < 64:
-        sos = sps.butter(2, corner_hz, btype="lowpass", fs=rate_hz, output="sos")
+        sos = _butter(2, corner_hz, "lowpass", rate_hz)
         slow_all = sps.sosfiltfilt(sos, y, padlen=min(y.size - 1, int(3 * rate_hz / corner_hz)))
         if sign > 0:
             out += slow_all
@@ -248,11 +249,23 @@ def refine(c: Conditioned, *, lowpass_hz: float | None = None, highpass_hz: floa
         return c
     sos = []
     if lowpass_hz is not None:
-        sos.append(sps.butter(4, lowpass_hz, btype="lowpass", fs=c.rate_hz, output="sos"))
+        sos.append(_butter(4, lowpass_hz, "lowpass", c.rate_hz))
     if highpass_hz is not None:
-        sos.append(sps.butter(2, highpass_hz, btype="highpass", fs=c.rate_hz, output="sos"))
+        sos.append(_butter(2, highpass_hz, "highpass", c.rate_hz))
     y = sps.sosfiltfilt(np.concatenate(sos), c.signal)
     return Conditioned(np.ascontiguousarray(y), c.rate_hz, c.dc_offset, c.channel)
+
+
+@functools.lru_cache(maxsize=64)
+def _butter_cached(order: int, corner_hz: float, btype: str, fs_hz: float) -> np.ndarray:
+    return sps.butter(order, corner_hz, btype=btype, fs=fs_hz, output="sos")
+
+
+def _butter(order: int, corner_hz: float, btype: str, fs_hz: float) -> np.ndarray:
+    """Butterworth second-order sections, designed once per order, corner (Hz), type and rate
+    (Hz): a streamed capture conditions every stretch with the same filters.  A copy of the
+    cached design (scipy's filter loop wants a writable one)."""
+    return _butter_cached(int(order), float(corner_hz), btype, float(fs_hz)).copy()
 
 
 def _check_corner(name: str, f_hz: float, nyq: float) -> None:
