@@ -155,7 +155,14 @@ def clocking_pw50_cell(w: np.ndarray, rate_hz: float, idx: np.ndarray, sign: np.
     if ok.sum() < 8:
         return None
     pos, sg = pos[ok], sign[j][ok]
-    pulses = np.interp(pos.ravel(), np.arange(w.size), w).reshape(pos.shape) * sg[:, None]
+    # interpolate on the read's own stretch of w, not the whole channel (that cost grew with
+    # reads × capture length); lo is 0 or at least the stretch's length, so pos - lo is exact
+    # (Sterbenz) and the result is bit-identical to interpolating on the whole signal
+    lo, hi = int(pos.min()), int(math.ceil(pos.max())) + 2
+    if lo < hi - lo:
+        lo = 0
+    hi = min(hi, w.size)
+    pulses = np.interp((pos - lo).ravel(), np.arange(hi - lo, dtype=float), w[lo:hi]).reshape(pos.shape) * sg[:, None]
     width = half_width(PULSE_GRID, pulses.mean(axis=0))
     return isolated_pw50_cell(width) if math.isfinite(width) else None
 
