@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from readchan.frontend.detect import FLAG_MISSING, FLAG_WEAK, detect_head
+from readchan.frontend.detect import TR_MISSING, TR_WEAK, detect_head
 from readchan.frontend.segment import segment
 from readchan.linecode.f2f import recover_bits
 
@@ -81,7 +81,7 @@ def test_detector_rescues_a_weak_pulse_between_two_of_the_same_polarity_and_flag
     tr = detect_head(x, RATE_HZ)
     assert len(tr) == 40
     k = int(np.argmin(np.abs(tr.times_s - times[20])))
-    assert tr.flags[k] & FLAG_WEAK
+    assert tr.flags[k] & TR_WEAK
     assert np.count_nonzero(tr.flags) == 1
 
 
@@ -93,7 +93,7 @@ def test_detector_flags_the_pulse_after_one_too_weak_to_rescue():
     tr = detect_head(x, RATE_HZ)
     assert len(tr) == 40
     k = int(np.argmin(np.abs(tr.times_s - times[21])))
-    assert tr.flags[k] & FLAG_MISSING
+    assert tr.flags[k] & TR_MISSING
     assert np.count_nonzero(tr.flags) == 1
 
 

@@ -1,4 +1,4 @@
-"""Stage 1, conditioning: remove DC offset and slow baseline, optional low-pass and mains notch.
+"""Stage 2, the front end's conditioning: remove DC offset and slow baseline, optional low-pass and mains notch.
 
 Input: one channel's samples (any units) and the sample rate (Hz); :class:`ConditionSettings`.
 Output: :class:`Conditioned` (the float64 signal, baseline at 0).

@@ -1,4 +1,4 @@
-"""Stage 2, transition detection: flux transitions from a head signal or a logic-level signal.
+"""Stage 3, transition detection: flux transitions from a head signal or a logic-level signal.
 
 Head signal (the inductive head's voltage): each flux transition is a pulse; successive
 transitions alternate in polarity (the medium's magnetisation can only flip back and forth).
@@ -38,11 +38,13 @@ from scipy.ndimage import maximum_filter1d, median_filter, percentile_filter
 
 from readchan._compiled import kernel
 
-FLAG_EXTRA = np.uint8(1)
+# Transition flags (``Transitions.flags``).  The line decoder's per-bit flags are ``BIT_*`` in
+# readchan.linecode.f2f: the two sets share values, so each has its own prefix and mask.
+TR_EXTRA = np.uint8(1)
 """A same-polarity neighbour of this transition was dropped as a noise peak."""
-FLAG_WEAK = np.uint8(2)
+TR_WEAK = np.uint8(2)
 """This transition was rescued below threshold between two pulses of the same polarity."""
-FLAG_MISSING = np.uint8(4)
+TR_MISSING = np.uint8(4)
 """The transition before this one has the same polarity: one (or an odd number) is missing."""
 
 
@@ -57,7 +59,7 @@ class Transitions:
     amplitude : signed peak value at each transition (capture units); logic: the level after.
     envelope : the local pulse-amplitude estimate each transition was accepted against (see
         :func:`detect_head`).
-    flags : per-transition bit mask of ``FLAG_*``.
+    flags : per-transition bit mask of ``TR_*`` (transition flags; bit flags are the line decoder's ``BIT_*``).
     rate_hz : sample rate in Hz.
     kind : ``"head"`` or ``"logic"``.
     noise_rms : noise RMS estimated from the quietest stretches (capture units).
@@ -81,7 +83,7 @@ class Transitions:
         flags = self.flags[sl].copy()
         if flags.size:
             # polarity against a transition outside the subset says nothing about this one
-            flags[0] &= ~FLAG_MISSING
+            flags[0] &= ~TR_MISSING
         return Transitions(self.times_s[sl], self.index[sl], self.amplitude[sl], self.envelope[sl],
                            flags, self.rate_hz, self.kind, self.noise_rms)
 
@@ -265,10 +267,10 @@ def _alternation_cases(S, same, idx, sgn, amp, env, interval, threshold):
         elif idx[b] - idx[a] < 0.6 * interval[k]:
             drop = k if amp[b] > amp[a] else k + 1
             keep[drop] = False
-            flags[k if drop == k + 1 else k + 1] |= 1            # FLAG_EXTRA
+            flags[k if drop == k + 1 else k + 1] |= 1            # TR_EXTRA
         else:
-            flags[k + 1] |= 4                                    # FLAG_MISSING
-    extra_flag = np.full(n_extra, 2, np.uint8)                  # FLAG_WEAK
+            flags[k + 1] |= 4                                    # TR_MISSING
+    extra_flag = np.full(n_extra, 2, np.uint8)                  # TR_WEAK
     return keep, flags, extra[:n_extra].copy(), extra_env[:n_extra].copy(), extra_flag
 
 

@@ -1,4 +1,4 @@
-"""Stage 0 in blocks: a capture's samples a block at a time, with overlap, in bounded memory.
+"""Stage 1, the source, in blocks: a capture's samples a block at a time, with overlap, in bounded memory.
 
 Input: an audio file (WAV, FLAC, AIFF, ...: anything soundfile reads) by path, or a
 :class:`readchan.io.capture.Capture` already in memory.

@@ -41,7 +41,7 @@ from readchan.frontend.detect import Transitions, detect_head
 from readchan.errors import ParameterError
 from readchan.frontend.segment import segment
 from readchan.frontend.crossings import hysteresis_crossings
-from readchan.linecode.f2f import FLAG_LONE_HALF, BitStream, _assemble, cell_positions
+from readchan.linecode.f2f import BIT_LONE_HALF, BitStream, _assemble, cell_positions
 
 ANCHOR_TOLERANCE = 0.3
 """A pair of intervals anchors the period when log2 of their ratio lies within ±0.3 of ±1."""
@@ -70,7 +70,7 @@ class TapeBits:
     end_s : time of the transition that closes each cell, seconds.
     period_s : bit period each bit was decided against, seconds.
     margin : decision margin per bit (:mod:`readchan.linecode.f2f`), 1 ideal, 0 on the boundary.
-    flags : per-bit ``readchan.linecode.f2f.FLAG_*``.
+    flags : per-bit ``readchan.linecode.f2f.BIT_*``.
     run : index of the stretch of continuous signal each bit belongs to.
     runs_s : (n_runs, 2) start and end time of each stretch, seconds.
     kind : the transition detector used, ``"line"`` or ``"head"``.
@@ -278,7 +278,7 @@ def bits_from_transitions(times_s: np.ndarray, *, kind: str = "line", gap_factor
             continue
         ft = bs.first_transition
         width = np.where(bs.bits == 1, 2, 1)
-        width = np.where(bs.flags & FLAG_LONE_HALF, 1, width)       # a lone half spans one interval
+        width = np.where(bs.flags & BIT_LONE_HALF, 1, width)       # a lone half spans one interval
         close = np.minimum(ft + width, ts.size - 1)
         parts.append((bs, ts[close]))
         runs.append((float(ts[0]), float(ts[-1])))

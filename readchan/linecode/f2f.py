@@ -41,9 +41,9 @@ from readchan._compiled import kernel
 BOUNDARY = 0.75
 """Decision boundary between a half cell and a full cell, in bit periods."""
 
-FLAG_LONE_HALF = np.uint8(1)
+BIT_LONE_HALF = np.uint8(1)
 """A half-cell interval not followed by a second half: a spurious or a missing transition."""
-FLAG_LONG = np.uint8(2)
+BIT_LONG = np.uint8(2)
 """An interval longer than 1.6 bit periods: transitions are missing."""
 
 
@@ -57,7 +57,7 @@ class BitStream:
     start_s : time of the transition that starts each bit cell, seconds.
     period_s : the bit-period estimate each bit was decided against, seconds.
     margin : decision margin per bit (see the module docstring), dimensionless.
-    flags : per-bit bit mask of ``FLAG_*``.
+    flags : per-bit bit mask of ``BIT_*`` (bit flags; transition flags are the detector's ``TR_*``).
     first_transition : index (within the read's transitions) of each bit's first transition.
     ratio : every interval normalised to the period estimate, r = Δ/T (one per interval).
     """
@@ -96,7 +96,7 @@ class BitStream:
         keep = (self.first_transition >= a) & (self.first_transition < b - 1)
         if keep.any():
             last = int(np.flatnonzero(keep)[-1])
-            width = 2 if self.bits[last] == 1 and not self.flags[last] & FLAG_LONE_HALF else 1
+            width = 2 if self.bits[last] == 1 and not self.flags[last] & BIT_LONE_HALF else 1
             if self.first_transition[last] + width > b - 1:
                 keep[last] = False
         return BitStream(self.bits[keep], self.start_s[keep], self.period_s[keep], self.margin[keep],
@@ -171,8 +171,8 @@ def _assemble(t: np.ndarray, first: list[int], kind: list[int], r: np.ndarray, p
     margin[two] = np.minimum(margin[two], dist[first_a[two] + 1])
     lone = kind_a == 3
     margin[lone] = 0.0
-    flags = np.where(lone, FLAG_LONE_HALF,
-                     np.where((kind_a == 1) & (r[first_a] > 1.6), FLAG_LONG, 0)).astype(np.uint8)
+    flags = np.where(lone, BIT_LONE_HALF,
+                     np.where((kind_a == 1) & (r[first_a] > 1.6), BIT_LONG, 0)).astype(np.uint8)
     return BitStream((kind_a != 1).astype(np.uint8), t[first_a], np.asarray(period, float), margin, flags,
                      first_a, r)
 

@@ -12,8 +12,8 @@ import numpy as np
 
 from readchan.channel import Read
 from readchan.formats.iso7811.framing import missing_end
-from readchan.frontend.detect import FLAG_EXTRA, FLAG_MISSING, FLAG_WEAK
-from readchan.linecode.f2f import FLAG_LONE_HALF, FLAG_LONG
+from readchan.frontend.detect import TR_EXTRA, TR_MISSING, TR_WEAK
+from readchan.linecode.f2f import BIT_LONE_HALF, BIT_LONG
 
 
 @dataclass(frozen=True)
@@ -59,11 +59,11 @@ def find_anomalies(r: Read, rate_hz: float) -> tuple[Anomaly, ...]:
         ch = int(char_of[bit]) if bit is not None and 0 <= bit < char_of.size and char_of[bit] >= 0 else None
         out.append(Anomaly(kind, float(t), int(round(t * rate_hz)), bit, ch))
 
-    for flag, kind in ((FLAG_MISSING, "polarity"), (FLAG_EXTRA, "extra"), (FLAG_WEAK, "weak")):
+    for flag, kind in ((TR_MISSING, "polarity"), (TR_EXTRA, "extra"), (TR_WEAK, "weak")):
         for j in np.flatnonzero(tr.flags & flag):
             bit = int(np.searchsorted(bs.first_transition, j, side="right") - 1) if len(bs) else None
             tag(kind, tr.times_s[j], bit if bit is not None and bit >= 0 else None)
-    for flag, kind in ((FLAG_LONE_HALF, "lone-half"), (FLAG_LONG, "long")):
+    for flag, kind in ((BIT_LONE_HALF, "lone-half"), (BIT_LONG, "long")):
         for k in np.flatnonzero(bs.flags & flag):
             tag(kind, bs.start_s[k], int(k))
 

@@ -107,7 +107,7 @@ MIN_REGULARITY = 0.75
 
 
 def suspect_bits(tr: Transitions, bs: BitStream) -> np.ndarray:
-    """Bits holding a transition the detector had to guess at (any ``FLAG_*`` of
+    """Bits holding a transition the detector had to guess at (any ``TR_*`` of
     :mod:`readchan.frontend.detect`), and the bit before each (the guess moves a cell boundary)."""
     flagged = np.flatnonzero(tr.flags)
     if flagged.size == 0 or len(bs) == 0:

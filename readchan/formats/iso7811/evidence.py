@@ -41,7 +41,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from readchan.frontend.detect import FLAG_EXTRA, FLAG_MISSING, Transitions
+from readchan.frontend.detect import TR_EXTRA, TR_MISSING, Transitions
 from readchan.formats.iso7811.framing import Frame
 from readchan.linecode.f2f import BitStream
 
@@ -70,9 +70,9 @@ crests): clipping on a wandering baseline moves good pulses' timing by up to 0.2
 there only intervals outside 0.25–1.25 cells, phase steps over 0.3 cell and period steps over
 6 % count."""
 
-GUESS_FLAGS = np.uint8(FLAG_EXTRA | FLAG_MISSING)
+GUESS_FLAGS = np.uint8(TR_EXTRA | TR_MISSING)
 """Detector flags that count as a guessed pulse: a noise peak dropped beside a pulse, or a
-polarity break.  A pulse rescued below threshold (``FLAG_WEAK``) does not count: clipped crests
+polarity break.  A pulse rescued below threshold (``TR_WEAK``) does not count: clipped crests
 on a wandering baseline need such rescues on good reads."""
 
 WINDOW = 8
