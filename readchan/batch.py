@@ -106,10 +106,43 @@ def _load(path: str, opts: BatchOptions, source: str):
         return [decode_strobe(got, settings)], got.duration_s, 1.0 / got.timescale_s, got.timescale_s
     from readchan.io.capture import load_capture
 
+    streamed = _streamed(path, settings, chans, source)
+    if streamed is not None:
+        return streamed
     cap = load_capture(path, rate_hz=opts.rate_hz)
     if cap.source != source:
         cap = replace(cap, source=source)
     return decode_capture(cap, settings, chans), cap.duration_s, cap.rate_hz, None
+
+
+STREAM_SUBTYPE_BYTES = {"PCM_U8": 1, "PCM_S8": 1, "PCM_16": 2, "PCM_24": 3, "PCM_32": 4, "FLOAT": 4, "DOUBLE": 8}
+"""Uncompressed audio sample types streamed from the file, with their bytes per sample: their
+header's length can be checked against the file's size before it is trusted."""
+
+
+def _streamed(path: str, settings, chans, source: str):
+    """(channel results, duration_s, rate_hz, None) of an audio capture longer than
+    :data:`readchan.stream.WHOLE_S`, decoded span by span from the file (:mod:`readchan.stream`),
+    so memory does not grow with its length; None for a shorter capture or one that is not audio.
+    Each channel's result holds its reads only (no channel-wide transitions or state)."""
+    from readchan.errors import CaptureError
+    from readchan.io.blocks import audio_info
+    from readchan.results import streamed_channel_result
+    from readchan.stream import WHOLE_S, decode_file
+
+    try:
+        info = audio_info(path)
+    except CaptureError:
+        return None
+    if info.frames <= WHOLE_S * info.rate_hz:
+        return None
+    width = STREAM_SUBTYPE_BYTES.get(info.subtype)
+    if width is None or info.frames * info.channels * width > os.path.getsize(path):
+        return None     # compressed, or a header claiming more than the file holds: the loader salvages it whole
+    reads = [replace(r, source=source) for r in decode_file(path, settings, chans, whole_s=WHOLE_S)]
+    out = [streamed_channel_result(c, info.rate_hz, tuple(r for r in reads if r.channel == c))
+           for c in (range(info.channels) if chans is None else chans)]
+    return out, info.frames / info.rate_hz, info.rate_hz, None
 
 
 def decode_source(src, opts: BatchOptions = BatchOptions()) -> CaptureResult:

@@ -15,7 +15,7 @@ from its format (:func:`readchan.formats.registry.read_json`).
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -111,3 +111,15 @@ def tape_channel_result(channel: int, rate_hz: float, kind: str, family: str, re
     z = np.zeros(0)
     empty = Transitions(z, np.zeros(0, np.int64), z, z, np.zeros(0, np.uint8), float(rate_hz), kind, 0.0)
     return ChannelResult(channel, kind, None, empty, (), () if read is None else (read,), None, family=family)
+
+
+def streamed_channel_result(channel: int, rate_hz: float, reads: tuple[Read, ...]) -> ChannelResult:
+    """A channel decoded span by span (:mod:`readchan.stream`): its reads, in time order, and no
+    channel-wide stages (transitions, segments, state); the family is its reads' (card when none)."""
+    from readchan.formats.registry import all_formats
+
+    families = {f.name: f.family for f in all_formats()}
+    family = families.get(reads[0].format, "card") if reads else "card"      # a custom card format: card
+    kind = reads[0].transitions.kind if reads and reads[0].transitions is not None else "head"
+    result = tape_channel_result(channel, rate_hz, kind, family, None)
+    return replace(result, reads=tuple(sorted(reads, key=lambda r: r.start_s)))
