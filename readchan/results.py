@@ -108,9 +108,7 @@ def tape_channel_result(channel: int, rate_hz: float, kind: str, family: str, re
     keeps its bits with their times in its payload, so ``transitions`` is empty here."""
     from readchan.frontend.detect import Transitions
 
-    z = np.zeros(0)
-    empty = Transitions(z, np.zeros(0, np.int64), z, z, np.zeros(0, np.uint8), float(rate_hz), kind, 0.0)
-    return ChannelResult(channel, kind, None, empty, (), () if read is None else (read,), None, family=family)
+    return ChannelResult(channel, kind, None, Transitions.empty(kind, rate_hz), (), () if read is None else (read,), None, family=family)
 
 
 def streamed_channel_result(channel: int, rate_hz: float, reads: tuple[Read, ...]) -> ChannelResult:

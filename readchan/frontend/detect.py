@@ -77,6 +77,12 @@ class Transitions:
     def __len__(self) -> int:
         return int(self.times_s.size)
 
+    @classmethod
+    def empty(cls, kind: str, rate_hz: float, noise_rms: float = 0.0) -> "Transitions":
+        """No transitions: a channel with nothing detected (or not detected at all)."""
+        z = np.zeros(0)
+        return cls(z, np.zeros(0, np.int64), z, z, np.zeros(0, np.uint8), float(rate_hz), kind, float(noise_rms))
+
     def subset(self, start: int, stop: int) -> "Transitions":
         """Transitions ``start:stop`` as a new object."""
         sl = slice(start, stop)
@@ -176,12 +182,12 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     step = max(1, x.size // 500_000)
     big = float(np.percentile(np.abs(x[::step]), 99.9)) if x.size else 0.0
     if not big > 0:
-        return _empty("head", rate_hz, sigma)
+        return Transitions.empty("head", rate_hz, sigma)
     floor = min(max(floor_sigma * sigma, 0.02 * big, 2.0 * quant_step), 0.3 * big)
     idx, sgn = _lobe_peaks(x, 0.5 * floor, floor)
     amp = np.abs(x[idx])
     if idx.size == 0:
-        return _empty("head", rate_hz, sigma)
+        return Transitions.empty("head", rate_hz, sigma)
     env = percentile_filter(maximum_filter1d(amp, size=min(5, idx.size), mode="nearest"), 75,
                             size=min(window, idx.size), mode="nearest")
     strong = amp >= threshold * env
@@ -341,14 +347,14 @@ def detect_logic(x: np.ndarray, rate_hz: float, *, hysteresis: float = 0.2) -> T
     lo, hi = np.percentile(x, [1.0, 99.0])
     mid, span = 0.5 * (lo + hi), hi - lo
     if not span > 0:
-        return _empty("logic", rate_hz, 0.0)
+        return Transitions.empty("logic", rate_hz)
     s = np.where(x > mid + hysteresis * span, 1, np.where(x < mid - hysteresis * span, -1, 0)).astype(np.int8)
     pos = np.where(s != 0, np.arange(s.size), 0)
     np.maximum.accumulate(pos, out=pos)
     state = s[pos]
     first = np.flatnonzero(state != 0)
     if first.size == 0:
-        return _empty("logic", rate_hz, 0.0)
+        return Transitions.empty("logic", rate_hz)
     change = np.flatnonzero(np.diff(state[first[0]:]) != 0) + first[0] + 1
     times = _logic_times(np.ascontiguousarray(x), float(mid), state[change].astype(np.float64), change)
     lvl = np.where(state[change] > 0, hi, lo)
@@ -370,8 +376,3 @@ def _logic_times(x, mid, state_after, change):
         a, b = x[j - 1] - mid, x[j] - mid
         times[n] = (j - 1 + a / (a - b)) if j > 0 and a != b else j
     return times
-
-
-def _empty(kind: str, rate_hz: float, sigma: float) -> Transitions:
-    z = np.zeros(0)
-    return Transitions(z, np.zeros(0, np.int64), z, z, np.zeros(0, np.uint8), float(rate_hz), kind, sigma)

@@ -287,9 +287,7 @@ def decode_card_channel(x: np.ndarray, rate_hz: float, settings: "CardSettings",
         # nothing above the noise: conditioned (which checks the settings against the rate),
         # but no detection, which would only time thousands of noise peaks
         check_condition_settings(settings.condition, rate_hz)
-        z = np.zeros(0)
-        tr = Transitions(z, np.zeros(0, np.int64), z, z, np.zeros(0, np.uint8), float(rate_hz), "head",
-                         float(np.std(x)))
+        tr = Transitions.empty("head", rate_hz, float(np.std(x)))
         record = FrontEndRecord(kind, silent=True)
     else:
         cond, tr, record = head_front_end(x, rate_hz, settings, channel)
