@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import replace
-from typing import Iterator
+from typing import Callable, Iterator
 
 import numpy as np
 
@@ -87,18 +87,35 @@ class _TapeRead(Exception):
     """A stretch held a tape read: the capture is decoded whole instead."""
 
 
-def _gate(path: str, chans: list[int], rate_hz: float) -> list[Activity]:
+Progress = Callable[[float], None]
+"""A progress callback: called with the fraction of the work done (0 to 1, never decreasing;
+the last call is 1.0)."""
+GATE_SHARE = 0.1
+"""Share of the progress the gate's pass counts for."""
+
+
+def _gate(path: str, chans: list[int], rate_hz: float, n: int, progress: Progress) -> list[Activity]:
     gates = [Activity(rate_hz) for _ in chans]
+    done = 0
     for blk in iter_blocks(path, GATE_BLOCK, dtype="float32"):
         for g, c in zip(gates, chans):
             g.feed(blk.samples[:, c])
+        done += blk.samples.shape[0]
+        progress(GATE_SHARE * min(1.0, done / max(1, n)))
     return gates
 
 
+def _no_progress(fraction: float) -> None:
+    """The progress callback that does nothing."""
+
+
 def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz: float,
-                   settings: DecodeSettings) -> Iterator[Read]:
+                   settings: DecodeSettings, progress: Progress) -> Iterator[Read]:
     settle, overlap = int(SETTLE_S * rate_hz), int(OVERLAP_S * rate_hz)
-    for g, c in zip(_gate(path, chans, rate_hz), chans):
+    gates = _gate(path, chans, rate_hz, n, progress)
+    total = sum(hi - lo for g in gates for lo, hi in g.spans()) or 1
+    done = 0
+    for g, c in zip(gates, chans):
         energies = g.energies()
         for span in g.spans():
             parts = _pieces(span, energies, g.block, rate_hz)
@@ -114,23 +131,29 @@ def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz
                     r = _at_capture_time(r, lo, rate_hz)
                     if len(parts) == 1 or own_lo <= r.start_s * rate_hz < own_hi:
                         yield r
+                done += own_hi - own_lo
+                progress(GATE_SHARE + (1.0 - GATE_SHARE) * min(1.0, done / total))
 
 
 def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSettings(),
-               channels: list[int] | None = None, *, whole_s: float = WHOLE_S) -> Iterator[Read]:
+               channels: list[int] | None = None, *, whole_s: float = WHOLE_S,
+               progress: Progress | None = None) -> Iterator[Read]:
     """The reads of the capture at ``path``, channel by channel and in time order within a
     channel, each as soon as its stretch is decoded; see the module docstring.  ``whole_s``:
-    captures up to this long (s) are decoded whole."""
+    captures up to this long (s) are decoded whole.  ``progress`` (:data:`Progress`) is told
+    the fraction done as the work goes on."""
+    progress = progress or _no_progress
     p = os.fspath(path)
     info = audio_info(p)
     chans = list(range(info.channels)) if channels is None else list(channels)
     if info.frames <= whole_s * info.rate_hz:
         for res in decode_capture(load_capture(p), settings, chans):
             yield from res.reads
+        progress(1.0)
         return
     found: list[Read] = []
     try:
-        for r in _stretch_reads(p, chans, info.channels, info.frames, info.rate_hz, settings):
+        for r in _stretch_reads(p, chans, info.channels, info.frames, info.rate_hz, settings, progress):
             found.append(r)
             yield r
     except _TapeRead:
@@ -138,9 +161,12 @@ def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSetting
         seen = {(r.channel, round(r.start_s, 6)) for r in found}
         for res in decode_capture(load_capture(p), settings, chans):
             yield from (r for r in res.reads if (r.channel, round(r.start_s, 6)) not in seen)
+    progress(1.0)
 
 
 def decode_file(path: str | os.PathLike, settings: DecodeSettings = DecodeSettings(),
-                channels: list[int] | None = None, *, whole_s: float = WHOLE_S) -> list[Read]:
+                channels: list[int] | None = None, *, whole_s: float = WHOLE_S,
+                progress: Progress | None = None) -> list[Read]:
     """Every read of the capture at ``path`` (:func:`iter_reads`), by channel and time."""
-    return sorted(iter_reads(path, settings, channels, whole_s=whole_s), key=lambda r: (r.channel, r.start_s))
+    return sorted(iter_reads(path, settings, channels, whole_s=whole_s, progress=progress),
+                  key=lambda r: (r.channel, r.start_s))
