@@ -27,7 +27,8 @@ A streamed read's ``segment.start``/``stop`` count transitions within its stretc
 from __future__ import annotations
 
 import os
-from dataclasses import replace
+from concurrent.futures import Executor
+from dataclasses import dataclass, replace
 from typing import Callable, Iterator
 
 import numpy as np
@@ -109,39 +110,80 @@ def _no_progress(fraction: float) -> None:
     """The progress callback that does nothing."""
 
 
-def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz: float,
-                   settings: DecodeSettings, progress: Progress) -> Iterator[Read]:
+@dataclass(frozen=True)
+class _Piece:
+    """One stretch to decode: channel ``channel`` of the file, samples ``lo:hi`` read, the reads
+    starting in ``own_lo:own_hi`` kept (all of them when ``keep_all``)."""
+
+    channel: int
+    lo: int
+    hi: int
+    own_lo: int
+    own_hi: int
+    keep_all: bool
+
+
+class _PieceTask:
+    """A piece's reads in capture time, as a picklable callable (for process pools):
+    ``(family, reads)``; a family other than ``card`` means the stretch held a tape read."""
+
+    def __init__(self, path: str, n_channels: int, rate_hz: float, settings: DecodeSettings) -> None:
+        self.path, self.n_channels, self.rate_hz, self.settings = path, n_channels, rate_hz, settings
+
+    def __call__(self, pc: _Piece) -> tuple[str, list[Read]]:
+        x = np.ascontiguousarray(read_span(self.path, pc.lo, pc.hi)[:, pc.channel])
+        res = decode_channel(x, self.rate_hz, self.settings, channel=pc.channel, n_channels=self.n_channels,
+                             source=self.path)
+        del x
+        if res.family != "card":
+            return res.family, []
+        kept = []
+        for r in res.reads:
+            r = _at_capture_time(r, pc.lo, self.rate_hz)
+            if pc.keep_all or pc.own_lo <= r.start_s * self.rate_hz < pc.own_hi:
+                kept.append(r)
+        return res.family, kept
+
+
+def _plan(gates: list[Activity], chans: list[int], n: int, rate_hz: float) -> list[_Piece]:
+    """Every channel's pieces, channel by channel and in time order."""
     settle, overlap = int(SETTLE_S * rate_hz), int(OVERLAP_S * rate_hz)
-    gates = _gate(path, chans, rate_hz, n, progress)
-    total = sum(hi - lo for g in gates for lo, hi in g.spans()) or 1
-    done = 0
+    out = []
     for g, c in zip(gates, chans):
         energies = g.energies()
         for span in g.spans():
             parts = _pieces(span, energies, g.block, rate_hz)
             margin = settle if len(parts) == 1 else overlap
-            for own_lo, own_hi in parts:
-                lo, hi = max(0, own_lo - margin), min(n, own_hi + margin)
-                x = np.ascontiguousarray(read_span(path, lo, hi)[:, c])
-                res = decode_channel(x, rate_hz, settings, channel=c, n_channels=n_channels, source=path)
-                del x
-                if res.family != "card":
-                    raise _TapeRead
-                for r in res.reads:
-                    r = _at_capture_time(r, lo, rate_hz)
-                    if len(parts) == 1 or own_lo <= r.start_s * rate_hz < own_hi:
-                        yield r
-                done += own_hi - own_lo
-                progress(GATE_SHARE + (1.0 - GATE_SHARE) * min(1.0, done / total))
+            out += [_Piece(c, max(0, a - margin), min(n, b + margin), a, b, len(parts) == 1) for a, b in parts]
+    return out
+
+
+def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz: float,
+                   settings: DecodeSettings, progress: Progress, executor: Executor | None) -> Iterator[Read]:
+    from readchan.batch import in_order
+
+    plan = _plan(_gate(path, chans, rate_hz, n, progress), chans, n, rate_hz)
+    total = sum(pc.own_hi - pc.own_lo for pc in plan) or 1
+    done = 0
+    task = _PieceTask(path, n_channels, rate_hz, settings)
+    window = 2 * getattr(executor, "_max_workers", 1)
+    for pc, (family, reads) in zip(plan, in_order(task, plan, executor, window=window)):
+        if family != "card":
+            raise _TapeRead
+        yield from reads
+        done += pc.own_hi - pc.own_lo
+        progress(GATE_SHARE + (1.0 - GATE_SHARE) * min(1.0, done / total))
 
 
 def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSettings(),
                channels: list[int] | None = None, *, whole_s: float = WHOLE_S,
-               progress: Progress | None = None) -> Iterator[Read]:
+               progress: Progress | None = None, executor: Executor | None = None) -> Iterator[Read]:
     """The reads of the capture at ``path``, channel by channel and in time order within a
     channel, each as soon as its stretch is decoded; see the module docstring.  ``whole_s``:
     captures up to this long (s) are decoded whole.  ``progress`` (:data:`Progress`) is told
-    the fraction done as the work goes on."""
+    the fraction done as the work goes on.  ``executor`` (any :class:`concurrent.futures.Executor`,
+    e.g. a process pool) decodes the stretches in parallel, a few in flight per worker; the reads
+    come out in the same order and are the same as without one."""
     progress = progress or _no_progress
     p = os.fspath(path)
     info = audio_info(p)
@@ -153,7 +195,8 @@ def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSetting
         return
     found: list[Read] = []
     try:
-        for r in _stretch_reads(p, chans, info.channels, info.frames, info.rate_hz, settings, progress):
+        for r in _stretch_reads(p, chans, info.channels, info.frames, info.rate_hz, settings, progress,
+                                executor):
             found.append(r)
             yield r
     except _TapeRead:
@@ -166,7 +209,20 @@ def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSetting
 
 def decode_file(path: str | os.PathLike, settings: DecodeSettings = DecodeSettings(),
                 channels: list[int] | None = None, *, whole_s: float = WHOLE_S,
-                progress: Progress | None = None) -> list[Read]:
-    """Every read of the capture at ``path`` (:func:`iter_reads`), by channel and time."""
-    return sorted(iter_reads(path, settings, channels, whole_s=whole_s, progress=progress),
-                  key=lambda r: (r.channel, r.start_s))
+                progress: Progress | None = None, jobs: int = 1) -> list[Read]:
+    """Every read of the capture at ``path`` (:func:`iter_reads`), by channel and time;
+    ``jobs`` > 1 decodes the stretches of a long capture in that many processes (same reads)."""
+    if isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 1:
+        from readchan.errors import ParameterError
+
+        raise ParameterError(f"jobs must be a whole number of processes of at least 1, was {jobs!r}")
+    if jobs == 1:
+        return _sorted(iter_reads(path, settings, channels, whole_s=whole_s, progress=progress))
+    from concurrent.futures import ProcessPoolExecutor
+
+    with ProcessPoolExecutor(max_workers=jobs) as pool:
+        return _sorted(iter_reads(path, settings, channels, whole_s=whole_s, progress=progress, executor=pool))
+
+
+def _sorted(reads) -> list[Read]:
+    return sorted(reads, key=lambda r: (r.channel, r.start_s))

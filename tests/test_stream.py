@@ -110,3 +110,62 @@ def test_memory_stays_flat_as_the_capture_grows(tmp_path):
     assert (short["reads"], long["reads"]) == (swipes_short, swipes_long)
     # a whole-file decode needs about 50 bytes a sample: 1.5 more minutes at 48 kHz would add 220 MB
     assert long["rss_mb"] - short["rss_mb"] < 40.0
+
+
+def _capture(path: Path, *, lead_s: float, snr_db: float, swipes: int, gap_s: float, seed: int = 5) -> Path:
+    """A synthesized track 1 capture (invented card, :data:`bench.T1`) written as 16-bit WAV."""
+    import soundfile as sf
+    from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
+    from readchan.synth.card import track_content
+
+    spec = SynthSpec(tracks=(track_content(bench.T1, track=1),), speed=SpeedProfile(40.0, "swipe", 0.3),
+                     swipes=swipes, gap_s=gap_s, lead_s=lead_s, seed=seed,
+                     impairments=Impairments(snr_db=snr_db, jitter=0.03, hum_level=0.05))
+    sf.write(path, synthesize(spec).samples[:, 0], 48_000, subtype="PCM_16")
+    return path
+
+
+@pytest.mark.parametrize("offset", [0, 1, 499, 1500, 2999])
+def test_a_swipe_at_any_offset_to_the_gate_blocks_decodes_as_whole(tmp_path, monkeypatch, offset):
+    # the swipe's first sample falls at a different place in the gate's 3000-frame reading blocks
+    # and its 960-sample (20 ms) energy blocks
+    monkeypatch.setattr(stream, "GATE_BLOCK", 3000)
+    path = _capture(tmp_path / "one.wav", lead_s=(24_000 + offset) / 48_000, snr_db=30.0, swipes=2, gap_s=1.5)
+    whole = _whole(path)
+    assert len(whole) == 2 and all(r.valid for r in whole)
+    _check_same(stream.decode_file(path, whole_s=1.0), whole)
+
+
+@pytest.mark.parametrize("snr_db", [12.0, 15.0])
+def test_the_activity_gate_keeps_every_read_a_whole_file_decode_finds_at_low_snr(tmp_path, snr_db):
+    # weak swipes with long idle gaps: the gate must not leave out a stretch that holds a read,
+    # valid or not (the whole-file decode is the reference)
+    path = _capture(tmp_path / "weak.wav", lead_s=1.0, snr_db=snr_db, swipes=4, gap_s=2.5)
+    whole = _whole(path)
+    assert len(whole) == 4
+    streamed = stream.decode_file(path, whole_s=1.0)
+    assert len(streamed) == len(whole)
+    # at low SNR a stretch's own noise floor may start a read a few bit cells earlier or later
+    assert all(abs(s.start_s - w.start_s) < 0.01 for s, w in zip(streamed, whole))
+
+
+def test_two_processes_give_the_reads_of_one(idle, monkeypatch):
+    monkeypatch.setattr(stream, "PIECE_S", 4.0)      # several pieces, so both workers get some
+    one = stream.decode_file(idle, whole_s=10.0)
+    two = stream.decode_file(idle, whole_s=10.0, jobs=2)
+    assert [(_key(r), r.start_s, len(r.bits), r.end_s) for r in two] == \
+        [(_key(r), r.start_s, len(r.bits), r.end_s) for r in one]
+
+
+def test_progress_rises_to_one(idle):
+    seen = []
+    stream.decode_file(idle, whole_s=10.0, progress=seen.append)
+    assert seen[-1] == 1.0 and seen == sorted(seen) and len(seen) > 3
+
+
+@pytest.mark.parametrize("jobs", [0, -1, 1.5, True])
+def test_a_bad_process_count_is_a_parameter_error(idle, jobs):
+    from readchan.errors import ParameterError
+
+    with pytest.raises(ParameterError, match="jobs"):
+        stream.decode_file(idle, jobs=jobs)
