@@ -74,6 +74,9 @@ class DecodeSettings:
     field_check : a read that claims an ISO/IEC 7813 layout (track 1 format code B, or track 2)
         and breaks it (:func:`readchan.formats.iso7813.layout_errors`) is not valid; turn off for
         non-financial cards that reuse the layouts.
+    quant_step : the converter's step in capture units, when it is known for the whole capture
+        (a stretch decoded on its own has too few samples to find it); None: found in the
+        samples (:func:`readchan.frontend.detect.quantisation_step`).
     """
 
     fmt: CharFormat | None = None
@@ -87,6 +90,7 @@ class DecodeSettings:
     recover: bool = True
     field_check: bool = True
     format: str = "auto"
+    quant_step: float | None = None
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -102,6 +106,9 @@ class DecodeSettings:
             raise ParameterError(f"threshold must be between 0.05 and 0.95, was {self.threshold!r}")
         if not 0.0 < self.loop_gain <= 1.0:
             raise ParameterError(f"loop gain must be in (0, 1], was {self.loop_gain!r}")
+        if self.quant_step is not None and not (isinstance(self.quant_step, (int, float)) and
+                                                np.isfinite(self.quant_step) and self.quant_step >= 0):
+            raise ParameterError(f"quant_step must be a finite step of at least 0, was {self.quant_step!r}")
         if isinstance(self.notch, str) and self.notch.strip().lower() in ("auto", "off"):
             object.__setattr__(self, "notch", Notch(self.notch.strip().lower()))
         else:

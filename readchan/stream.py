@@ -35,6 +35,7 @@ import numpy as np
 
 from readchan.channel import DecodeSettings, decode_capture, decode_channel
 from readchan.frontend.activity import Activity
+from readchan.frontend.detect import quantisation_step
 from readchan.io.blocks import audio_info, iter_blocks, read_span
 from readchan.io.capture import load_capture
 from readchan.results import Read
@@ -95,15 +96,29 @@ GATE_SHARE = 0.1
 """Share of the progress the gate's pass counts for."""
 
 
-def _gate(path: str, chans: list[int], rate_hz: float, n: int, progress: Progress) -> list[Activity]:
+QUANT_SAMPLES = 200_000
+"""Samples :func:`readchan.frontend.detect.quantisation_step` looks at (its own stride rule)."""
+
+
+def _gate(path: str, chans: list[int], rate_hz: float, n: int, progress: Progress
+          ) -> tuple[list[Activity], list[float]]:
+    """The gate of each channel, and each channel's converter step found in the same every
+    ``n // 200000``-th sample a whole-capture decode looks at (so a stretch uses the step of
+    the whole capture, not one guessed from its own few samples)."""
     gates = [Activity(rate_hz) for _ in chans]
+    stride = max(1, n // QUANT_SAMPLES)
+    picks: list[list[np.ndarray]] = [[] for _ in chans]
     done = 0
     for blk in iter_blocks(path, GATE_BLOCK, dtype="float32"):
-        for g, c in zip(gates, chans):
+        fresh = blk.samples[blk.overlap:]
+        first = (-(blk.start + blk.overlap)) % stride
+        for g, c, pick in zip(gates, chans, picks):
             g.feed(blk.samples[:, c])
-        done += blk.samples.shape[0]
+            pick.append(fresh[first::stride, c].astype(float))
+        done += fresh.shape[0]
         progress(GATE_SHARE * min(1.0, done / max(1, n)))
-    return gates
+    steps = [quantisation_step(np.concatenate(p)) if p else 0.0 for p in picks]
+    return gates, steps
 
 
 def _no_progress(fraction: float) -> None:
@@ -127,12 +142,17 @@ class _PieceTask:
     """A piece's reads in capture time, as a picklable callable (for process pools):
     ``(family, reads)``; a family other than ``card`` means the stretch held a tape read."""
 
-    def __init__(self, path: str, n_channels: int, rate_hz: float, settings: DecodeSettings) -> None:
+    def __init__(self, path: str, n_channels: int, rate_hz: float, settings: DecodeSettings,
+                 steps: dict[int, float]) -> None:
         self.path, self.n_channels, self.rate_hz, self.settings = path, n_channels, rate_hz, settings
+        self.steps = steps
 
     def __call__(self, pc: _Piece) -> tuple[str, list[Read]]:
         x = np.ascontiguousarray(read_span(self.path, pc.lo, pc.hi)[:, pc.channel])
-        res = decode_channel(x, self.rate_hz, self.settings, channel=pc.channel, n_channels=self.n_channels,
+        settings = self.settings
+        if pc.channel in self.steps:
+            settings = replace(settings, quant_step=self.steps[pc.channel])
+        res = decode_channel(x, self.rate_hz, settings, channel=pc.channel, n_channels=self.n_channels,
                              source=self.path)
         del x
         if res.family != "card":
@@ -162,10 +182,12 @@ def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz
                    settings: DecodeSettings, progress: Progress, executor: Executor | None) -> Iterator[Read]:
     from readchan.batch import in_order
 
-    plan = _plan(_gate(path, chans, rate_hz, n, progress), chans, n, rate_hz)
+    gates, steps = _gate(path, chans, rate_hz, n, progress)
+    plan = _plan(gates, chans, n, rate_hz)
     total = sum(pc.own_hi - pc.own_lo for pc in plan) or 1
     done = 0
-    task = _PieceTask(path, n_channels, rate_hz, settings)
+    task = _PieceTask(path, n_channels, rate_hz, settings,
+                      {c: q for c, q in zip(chans, steps)} if settings.quant_step is None else {})
     window = 2 * getattr(executor, "_max_workers", 1)
     for pc, (family, reads) in zip(plan, in_order(task, plan, executor, window=window)):
         if family != "card":

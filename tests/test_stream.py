@@ -169,3 +169,22 @@ def test_a_bad_process_count_is_a_parameter_error(idle, jobs):
 
     with pytest.raises(ParameterError, match="jobs"):
         stream.decode_file(idle, jobs=jobs)
+
+
+def test_a_stretch_uses_the_whole_captures_converter_step(tmp_path, monkeypatch):
+    # a short noisy stretch has too many distinct values for the step to be found in it alone;
+    # the 16-bit file's step is 2**-15 of full scale (soundfile's PCM_16 scaling)
+    from readchan.channel import decode_channel as real
+
+    path = _capture(tmp_path / "weak.wav", lead_s=1.0, snr_db=12.0, swipes=2, gap_s=2.5)
+    steps = []
+
+    def spy(x, rate_hz, settings, **kw):
+        steps.append(settings.quant_step)
+        return real(x, rate_hz, settings, **kw)
+
+    monkeypatch.setattr(stream, "decode_channel", spy)
+    stream.decode_file(path, whole_s=1.0)
+    assert steps and all(q == 2.0 ** -15 for q in steps)
+    whole = decode_capture(load_capture(path))[0]
+    assert whole.front_end.quant_step == 2.0 ** -15

@@ -31,6 +31,7 @@ class HeadSettings(Protocol):
     notch: object               # "auto", "off" or a frequency in Hz
     threshold: float
     auto_band: bool
+    quant_step: float | None    # the converter step, capture units, when known for the capture
 
 
 @dataclass(frozen=True)
@@ -109,7 +110,7 @@ def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", chan
     cond = condition(x, rate_hz, cs, channel=channel)
     band = signal_band_hz(cond.signal, rate_hz) if settings.auto_band and cs.lowpass_hz is None else None
     first = refine(cond, lowpass_hz=1.5 * band) if band is not None else cond
-    q = quantisation_step(x)
+    q = quantisation_step(x) if getattr(settings, "quant_step", None) is None else float(settings.quant_step)
     tr = detect_head(first.signal, rate_hz, threshold=settings.threshold, quant_step=q)
     refined = False
     if settings.notch == "auto":
