@@ -215,15 +215,14 @@ def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSetting
             yield from res.reads
         progress(1.0)
         return
-    found: list[Read] = []
+    seen: set[tuple[int, float]] = set()          # keys only: the reads given are not kept here
     try:
         for r in _stretch_reads(p, chans, info.channels, info.frames, info.rate_hz, settings, progress,
                                 executor):
-            found.append(r)
+            seen.add((r.channel, round(r.start_s, 6)))
             yield r
     except _TapeRead:
         # a tape read spans the tape: decoded whole, its reads after those already given
-        seen = {(r.channel, round(r.start_s, 6)) for r in found}
         for res in decode_capture(load_capture(p), settings, chans):
             yield from (r for r in res.reads if (r.channel, round(r.start_s, 6)) not in seen)
     progress(1.0)

@@ -16,7 +16,9 @@ For each capture the script prints, from ``--repeat`` fresh processes each (medi
 
 * the reference: a plain read of the file (``soundfile.read``, float64) plus one 8th-order
   Butterworth ``sosfilt`` pass over it, timed in its own fresh process right before each decode;
-* the decode (``--api stream``, the default: :func:`readchan.stream.decode_file`; ``--api whole``:
+* the decode (``--api stream``, the default: :func:`readchan.stream.decode_file`, every read
+  kept in a list; ``--api iter``: :func:`readchan.stream.iter_reads`, each read dropped once
+  counted, as a JSON Lines writer would; ``--api whole``:
   ``load_capture`` + ``decode_capture``): cold (the first decode in a fresh
   process, imports done, so any compilation or cache load counts) and warm (a second decode in
   the same process), samples per second, and the ratio to the reference;
@@ -32,7 +34,7 @@ Threads: the workers run with ``OMP_NUM_THREADS=1`` (and the BLAS equivalents) u
 The machine is shared: the load average (``/proc/loadavg``) is printed before and after.
 
 Run: ``OMP_NUM_THREADS=1 python scripts/bench_stream.py [--minutes 10] [--repeat 5] [--long]
-[--only idle,bench] [--fresh-cache] [--api whole]``.
+[--only idle,bench] [--fresh-cache] [--api iter|whole]``.
 """
 
 from __future__ import annotations
@@ -124,13 +126,31 @@ def worker_reference(path: str) -> dict:
             "rss_mb": _rss_mb()}
 
 
+class _Seen:
+    """What the count of good reads needs of a read."""
+
+    __slots__ = ("valid", "text")
+
+    def __init__(self, valid: bool, text: str | None) -> None:
+        self.valid, self.text = valid, text
+
+    @property
+    def frame(self):
+        return self
+
+
 def _decode(path: str) -> list:
     """The reads of ``path``: streamed (:func:`readchan.stream.decode_file`), or with
     ``BENCH_API=whole`` loaded whole and decoded (``load_capture`` + ``decode_capture``)."""
-    if os.environ.get("BENCH_API", "stream") == "stream":
+    api = os.environ.get("BENCH_API", "stream")
+    if api == "stream":
         from readchan.stream import decode_file
 
         return decode_file(path)
+    if api == "iter":                            # each read looked at and dropped, as a JSON Lines writer does
+        from readchan.stream import iter_reads
+
+        return [_Seen(r.valid, r.frame.text if r.frame else None) for r in iter_reads(path)]
     from readchan.channel import decode_capture
     from readchan.io.capture import load_capture
 
@@ -226,8 +246,9 @@ def main() -> None:
     ap.add_argument("--only", default="", help="comma-separated captures to run (idle, bench, continuous, long)")
     ap.add_argument("--fresh-cache", action="store_true",
                     help="an empty numba cache directory for every decode, so the cold decode includes compilation")
-    ap.add_argument("--api", choices=("stream", "whole"), default="stream",
-                    help="stream: readchan.stream.decode_file (default); whole: load_capture + decode_capture")
+    ap.add_argument("--api", choices=("stream", "iter", "whole"), default="stream",
+                    help="stream: readchan.stream.decode_file, every read kept (default); iter: readchan.stream."
+                         "iter_reads, each read dropped once counted; whole: load_capture + decode_capture")
     ap.add_argument("--json", type=Path, default=None, help="also write the figures to this JSON file")
     ap.add_argument("--worker", nargs=2, metavar=("KIND", "PATH"), help=argparse.SUPPRESS)
     args = ap.parse_args()
