@@ -36,7 +36,7 @@ import numpy as np
 from readchan.channel import DecodeSettings, decode_capture, decode_channel
 from readchan.frontend.activity import Activity
 from readchan.frontend.detect import quantisation_step
-from readchan.io.blocks import audio_info, iter_blocks, read_span
+from readchan.io.blocks import audio_info, fast_dtype, iter_blocks, read_span
 from readchan.io.capture import load_capture
 from readchan.results import Read
 
@@ -50,8 +50,9 @@ PIECE_S = 30.0
 """Longest stretch decoded at once, s (a piece: 1.4 M samples at 48 kHz, about 80 MB at the peak)."""
 OVERLAP_S = 2.5
 """Capture two neighbouring pieces of a long span share, s: longer than a card swipe."""
-GATE_BLOCK = 1 << 18
-"""Frames read at a time for the gate's pass."""
+GATE_BLOCK = 960 * 256
+"""Frames read at a time for the gate's pass (a whole number of 20 ms energy blocks at 48 kHz,
+so that no part block is carried from one read to the next)."""
 
 
 def _pieces(span: tuple[int, int], energies: np.ndarray, block: int, rate_hz: float) -> list[tuple[int, int]]:
@@ -100,7 +101,7 @@ QUANT_SAMPLES = 200_000
 """Samples :func:`readchan.frontend.detect.quantisation_step` looks at (its own stride rule)."""
 
 
-def _gate(path: str, chans: list[int], rate_hz: float, n: int, progress: Progress
+def _gate(path: str, chans: list[int], rate_hz: float, n: int, progress: Progress, subtype: str = ""
           ) -> tuple[list[Activity], list[float]]:
     """The gate of each channel, and each channel's converter step found in the same every
     ``n // 200000``-th sample a whole-capture decode looks at (so a stretch uses the step of
@@ -109,12 +110,13 @@ def _gate(path: str, chans: list[int], rate_hz: float, n: int, progress: Progres
     stride = max(1, n // QUANT_SAMPLES)
     picks: list[list[np.ndarray]] = [[] for _ in chans]
     done = 0
-    for blk in iter_blocks(path, GATE_BLOCK, dtype="float32"):
+    dtype, scale = fast_dtype(subtype)
+    for blk in iter_blocks(path, GATE_BLOCK, dtype=dtype):
         fresh = blk.samples[blk.overlap:]
         first = (-(blk.start + blk.overlap)) % stride
         for g, c, pick in zip(gates, chans, picks):
-            g.feed(blk.samples[:, c])
-            pick.append(fresh[first::stride, c].astype(float))
+            g.feed(blk.samples[:, c], scale)
+            pick.append(fresh[first::stride, c] * scale)
         done += fresh.shape[0]
         progress(GATE_SHARE * min(1.0, done / max(1, n)))
     steps = [quantisation_step(np.concatenate(p)) if p else 0.0 for p in picks]
@@ -182,7 +184,7 @@ def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz
                    settings: DecodeSettings, progress: Progress, executor: Executor | None) -> Iterator[Read]:
     from readchan.batch import in_order
 
-    gates, steps = _gate(path, chans, rate_hz, n, progress)
+    gates, steps = _gate(path, chans, rate_hz, n, progress, audio_info(path).subtype)
     plan = _plan(gates, chans, n, rate_hz)
     total = sum(pc.own_hi - pc.own_lo for pc in plan) or 1
     done = 0

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from readchan.errors import CaptureError, ParameterError
-from readchan.io.blocks import audio_info, capture_blocks, iter_blocks, read_span
+from readchan.io.blocks import audio_info, capture_blocks, fast_dtype, iter_blocks, read_span
 from readchan.io.capture import load_capture, write_capture
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -57,6 +57,25 @@ def test_sixteen_bit_samples_read_as_float32_are_exact(wav):
     whole = load_capture(wav).samples
     got = _stitched(iter_blocks(wav, 4096, 100, dtype="float32"))
     assert got.dtype == np.float32 and np.array_equal(got.astype(np.float64), whole)
+
+
+@pytest.mark.parametrize("subtype", ["PCM_16", "PCM_24", "PCM_32", "PCM_U8"])
+def test_integer_reads_times_their_factor_are_the_float_read(tmp_path, subtype):
+    # libsndfile's float read of integer PCM is the integer over its full scale (soundfile docs:
+    # "int16 ... -32768..32767" against "float64 ... -1.0..1.0"); the gate's pass relies on it
+    import soundfile as sf
+
+    rng = np.random.default_rng(3)
+    path = tmp_path / "x.wav"
+    sf.write(path, rng.uniform(-0.9, 0.9, (5000, 2)), 48_000, subtype=subtype)
+    dtype, scale = fast_dtype(subtype)
+    ints = _stitched(iter_blocks(path, 1024, dtype=dtype))
+    assert ints.dtype == np.dtype(dtype)
+    assert np.array_equal(ints * scale, read_span(path, 0, 5000))
+
+
+def test_a_float_file_is_read_as_float32_for_a_summing_pass():
+    assert fast_dtype("FLOAT") == ("float32", 1.0) and fast_dtype("VORBIS") == ("float32", 1.0)
 
 
 def test_a_stretch_and_blocks_of_a_stretch_are_those_samples(wav):
