@@ -34,23 +34,40 @@ def pulse_width_s(x: np.ndarray, tr: Transitions, *, n: int = 200) -> float | No
         return None
     a = np.abs(tr.amplitude)
     pick = np.argsort(a)[::-1][: min(n, len(tr))]
+    idx = tr.index[pick].astype(np.int64)
+    sign = np.where(x[idx] >= 0, 1.0, -1.0)
+    half = 0.5 * sign * x[idx]
+    # the nearest sample below half on either side, first within NEAR samples of the peak for
+    # all the pulses at once, then (for the few not found there) within ±4096 one by one
+    k = np.arange(-NEAR, NEAR + 1)
+    win = np.clip(idx[:, None] + k, 0, x.size - 1)
+    inside = (idx[:, None] + k >= 0) & (idx[:, None] + k < x.size)
+    below = (sign[:, None] * x[win] < half[:, None]) & inside
+    left_part, right_part = below[:, :NEAR][:, ::-1], below[:, NEAR:]
+    a0 = np.where(left_part.any(axis=1), idx - 1 - np.argmax(left_part, axis=1), -1)
+    b0 = np.where(right_part.any(axis=1), idx + np.argmax(right_part, axis=1), -1)
     widths = []
-    for j in pick.tolist():
-        i = int(tr.index[j])
-        s = 1.0 if x[i] >= 0 else -1.0
-        half = 0.5 * s * x[i]
-        lo, hi = max(0, i - 4096), min(x.size, i + 4097)
-        below_l = np.flatnonzero(s * x[lo:i] < half)
-        below_r = np.flatnonzero(s * x[i:hi] < half)
-        if below_l.size and below_r.size:
-            a0 = lo + int(below_l[-1])                 # last sample below half, left of the peak
-            b0 = i + int(below_r[0])                   # first sample below half, right of it
-            ya, ya1 = s * x[a0], s * x[a0 + 1]
-            yb0, yb = s * x[b0 - 1], s * x[b0]
-            left = a0 + (half - ya) / (ya1 - ya) if ya1 != ya else a0 + 0.5
-            right = b0 - 1 + (yb0 - half) / (yb0 - yb) if yb0 != yb else b0 - 0.5
-            widths.append(right - left)
+    for j in range(idx.size):
+        i, s_, h = int(idx[j]), float(sign[j]), float(half[j])
+        l0, r0 = int(a0[j]), int(b0[j])
+        if l0 < 0 or r0 < 0:
+            lo, hi = max(0, i - 4096), min(x.size, i + 4097)
+            below_l = np.flatnonzero(s_ * x[lo:i] < h)
+            below_r = np.flatnonzero(s_ * x[i:hi] < h)
+            if not (below_l.size and below_r.size):
+                continue
+            l0, r0 = lo + int(below_l[-1]), i + int(below_r[0])
+        ya, ya1 = s_ * x[l0], s_ * x[l0 + 1]
+        yb0, yb = s_ * x[r0 - 1], s_ * x[r0]
+        left = l0 + (h - ya) / (ya1 - ya) if ya1 != ya else l0 + 0.5
+        right = r0 - 1 + (yb0 - h) / (yb0 - yb) if yb0 != yb else r0 - 0.5
+        widths.append(right - left)
     return float(np.median(widths)) / tr.rate_hz if widths else None
+
+
+NEAR = 48
+"""Samples either side of a peak searched for its half-amplitude crossings all at once (a pulse
+of PW50 up to about 90 samples); wider pulses are searched one by one."""
 
 
 def auto_lowpass_hz(tr: Transitions, rate_hz: float, *, factor: float = 1.0) -> float | None:
