@@ -317,6 +317,20 @@ def _hum_basis(t: np.ndarray, f: float, harmonics: int = 3) -> np.ndarray:
     return np.stack(cols, axis=1)
 
 
+def _fundamental_residuals(t: np.ndarray, y: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
+    """Residual sum of squares of the least-squares fit of a·cos(2πft) + b·sin(2πft) to ``y``
+    at times ``t`` (s), for every frequency of ``freqs_hz`` at once: from the normal equations
+    of the two columns (Gram matrix G, right side r: RSS = Σy² − rᵀG⁻¹r), which is what
+    ``numpy.linalg.lstsq`` minimises, without one solver call per frequency."""
+    w = 2 * np.pi * np.asarray(freqs_hz, float)[:, None] * t[None, :]
+    c, s = np.cos(w), np.sin(w)
+    cc, ss, cs = np.einsum("ij,ij->i", c, c), np.einsum("ij,ij->i", s, s), np.einsum("ij,ij->i", c, s)
+    cy, sy = c @ y, s @ y
+    det = cc * ss - cs * cs
+    explained = (ss * cy * cy - 2 * cs * cy * sy + cc * sy * sy) / np.where(det > 0, det, np.inf)
+    return float(y @ y) - explained
+
+
 def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: float = 8.0,
             min_level: float = 0.02) -> HumFit | None:
     """Fit mains hum (50 or 60 Hz ± 0.6 Hz, with harmonics 2 and 3) to the samples where
@@ -347,10 +361,10 @@ def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: f
         return float(np.sum((y - A @ coef) ** 2)), f, coef
 
     # coarse search on the fundamental (0.1 Hz), then 0.02 Hz around the best, then harmonics
-    coarse = min((fit(f, False) for m in (50.0, 60.0) for f in np.arange(m - 0.6, m + 0.6001, 0.1)),
-                 key=lambda r: r[0])
-    fine = min((fit(f, False) for f in np.arange(coarse[1] - 0.1, coarse[1] + 0.1001, 0.02)), key=lambda r: r[0])
-    best = fit(fine[1], True)
+    grid = np.concatenate([np.arange(m - 0.6, m + 0.6001, 0.1) for m in (50.0, 60.0)])
+    f0 = float(grid[int(np.argmin(_fundamental_residuals(t, y, grid)))])
+    fine = np.arange(f0 - 0.1, f0 + 0.1001, 0.02)
+    best = fit(float(fine[int(np.argmin(_fundamental_residuals(t, y, fine)))]), True)
     res, f, coef = best
     sigma = math.sqrt(res / max(q.size - 6, 1))
     amp = float(math.hypot(coef[0], coef[1]))
