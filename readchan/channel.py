@@ -77,6 +77,9 @@ class DecodeSettings:
     quant_step : the converter's step in capture units, when it is known for the whole capture
         (a stretch decoded on its own has too few samples to find it); None: found in the
         samples (:func:`readchan.frontend.detect.quantisation_step`).
+    band_hz : the signal band of the whole capture (Hz; 0 for "none found"), when it was found
+        once for the capture (:func:`readchan.frontend.condition.signal_band_hz` over its most
+        energetic stretch); None: found in the samples decoded.
     """
 
     fmt: CharFormat | None = None
@@ -91,6 +94,7 @@ class DecodeSettings:
     field_check: bool = True
     format: str = "auto"
     quant_step: float | None = None
+    band_hz: float | None = None
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -109,6 +113,9 @@ class DecodeSettings:
         if self.quant_step is not None and not (isinstance(self.quant_step, (int, float)) and
                                                 np.isfinite(self.quant_step) and self.quant_step >= 0):
             raise ParameterError(f"quant_step must be a finite step of at least 0, was {self.quant_step!r}")
+        if self.band_hz is not None and not (isinstance(self.band_hz, (int, float)) and
+                                             np.isfinite(self.band_hz) and self.band_hz >= 0):
+            raise ParameterError(f"band_hz must be a finite frequency of at least 0 Hz, was {self.band_hz!r}")
         if isinstance(self.notch, str) and self.notch.strip().lower() in ("auto", "off"):
             object.__setattr__(self, "notch", Notch(self.notch.strip().lower()))
         else:

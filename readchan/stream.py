@@ -145,15 +145,15 @@ class _PieceTask:
     ``(family, reads)``; a family other than ``card`` means the stretch held a tape read."""
 
     def __init__(self, path: str, n_channels: int, rate_hz: float, settings: DecodeSettings,
-                 steps: dict[int, float]) -> None:
+                 decided: dict[int, dict]) -> None:
         self.path, self.n_channels, self.rate_hz, self.settings = path, n_channels, rate_hz, settings
-        self.steps = steps
+        self.decided = decided          # per channel: the settings decided once for the capture
 
     def __call__(self, pc: _Piece) -> tuple[str, list[Read]]:
         x = np.ascontiguousarray(read_span(self.path, pc.lo, pc.hi)[:, pc.channel])
         settings = self.settings
-        if pc.channel in self.steps:
-            settings = replace(settings, quant_step=self.steps[pc.channel])
+        if self.decided.get(pc.channel):
+            settings = replace(settings, **self.decided[pc.channel])
         res = decode_channel(x, self.rate_hz, settings, channel=pc.channel, n_channels=self.n_channels,
                              source=self.path)
         del x
@@ -165,6 +165,36 @@ class _PieceTask:
             if pc.keep_all or pc.own_lo <= r.start_s * self.rate_hz < pc.own_hi:
                 kept.append(r)
         return res.family, kept
+
+
+BAND_BLOCK = 1 << 18
+"""Samples of the stretch the capture's signal band is found in (as a whole-file decode does:
+:func:`readchan.frontend.condition.signal_band_hz`)."""
+
+
+def _capture_band_hz(path: str, channel: int, gate: Activity, n: int, rate_hz: float,
+                     settings: DecodeSettings) -> float | None:
+    """The signal band (Hz; 0 for none) of one channel of the whole capture, found once, as a
+    whole-file decode finds it: over the most energetic of its aligned :data:`BAND_BLOCK`-sample
+    blocks (chosen here from the gate's block variances), conditioned as the head front end
+    conditions it; None where the front end would not look for one (a set low-pass, no auto band)."""
+    from readchan.frontend.condition import ConditionSettings, condition, signal_band_hz
+
+    cs = settings.condition
+    if not settings.auto_band or cs.lowpass_hz is not None or n <= BAND_BLOCK:
+        return None
+    if not isinstance(settings.notch, str) and not hasattr(settings.notch, "value"):
+        cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (float(settings.notch),), cs.notch_q)
+    e = gate.energies()
+    which = (np.arange(e.size) * gate.block + gate.block // 2) // BAND_BLOCK
+    nb = n // BAND_BLOCK
+    keep = which < nb
+    k = int(np.argmax(np.bincount(which[keep], weights=e[keep], minlength=nb)))
+    settle = int(SETTLE_S * rate_hz)
+    lo, hi = max(0, k * BAND_BLOCK - settle), min(n, (k + 1) * BAND_BLOCK + settle)
+    x = np.ascontiguousarray(read_span(path, lo, hi)[:, channel])
+    y = condition(x, rate_hz, cs, channel=channel).signal[k * BAND_BLOCK - lo:][:BAND_BLOCK]
+    return signal_band_hz(y, rate_hz) or 0.0
 
 
 def _plan(gates: list[Activity], chans: list[int], n: int, rate_hz: float) -> list[_Piece]:
@@ -188,8 +218,15 @@ def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz
     plan = _plan(gates, chans, n, rate_hz)
     total = sum(pc.own_hi - pc.own_lo for pc in plan) or 1
     done = 0
-    task = _PieceTask(path, n_channels, rate_hz, settings,
-                      {c: q for c, q in zip(chans, steps)} if settings.quant_step is None else {})
+    decided = {}
+    for g, c, q in zip(gates, chans, steps):
+        d = {} if settings.quant_step is not None else {"quant_step": q}
+        if settings.band_hz is None and g.spans():
+            band = _capture_band_hz(path, c, g, n, rate_hz, settings)
+            if band is not None:
+                d["band_hz"] = band
+        decided[c] = d
+    task = _PieceTask(path, n_channels, rate_hz, settings, decided)
     window = 2 * getattr(executor, "_max_workers", 1)
     for pc, (family, reads) in zip(plan, in_order(task, plan, executor, window=window)):
         if family != "card":

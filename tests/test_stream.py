@@ -188,3 +188,24 @@ def test_a_stretch_uses_the_whole_captures_converter_step(tmp_path, monkeypatch)
     assert steps and all(q == 2.0 ** -15 for q in steps)
     whole = decode_capture(load_capture(path))[0]
     assert whole.front_end.quant_step == 2.0 ** -15
+
+
+@pytest.mark.parametrize("capture", ["idle", "weak", "bench"])
+def test_a_stretch_uses_the_signal_band_a_whole_file_decode_finds(tmp_path, monkeypatch, idle, capture):
+    # the band is decided once for the capture, over its most energetic 2**18-sample block as the
+    # whole-file front end does, and handed to every stretch (0 where none was found)
+    from readchan.channel import decode_channel as real
+
+    path = {"idle": lambda: idle,
+            "weak": lambda: _capture(tmp_path / "weak.wav", lead_s=1.0, snr_db=12.0, swipes=4, gap_s=2.5),
+            "bench": lambda: bench.build(tmp_path / "bench.wav", 0.25, 12.0) and tmp_path / "bench.wav"}[capture]()
+    bands = []
+
+    def spy(x, rate_hz, settings, **kw):
+        bands.append(settings.band_hz)
+        return real(x, rate_hz, settings, **kw)
+
+    monkeypatch.setattr(stream, "decode_channel", spy)
+    stream.decode_file(path, whole_s=1.0)
+    whole = decode_capture(load_capture(path))[0].front_end.band_hz
+    assert bands and set(bands) == {whole or 0.0}

@@ -32,6 +32,7 @@ class HeadSettings(Protocol):
     threshold: float
     auto_band: bool
     quant_step: float | None    # the converter step, capture units, when known for the capture
+    band_hz: float | None       # the capture's signal band, Hz (0: none), when found once for it
 
 
 @dataclass(frozen=True)
@@ -108,7 +109,10 @@ def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", chan
         hum = float(settings.notch)
         cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
     cond = condition(x, rate_hz, cs, channel=channel)
-    band = signal_band_hz(cond.signal, rate_hz) if settings.auto_band and cs.lowpass_hz is None else None
+    band = None
+    if settings.auto_band and cs.lowpass_hz is None:
+        given = getattr(settings, "band_hz", None)
+        band = signal_band_hz(cond.signal, rate_hz) if given is None else (float(given) or None)
     first = refine(cond, lowpass_hz=1.5 * band) if band is not None else cond
     q = quantisation_step(x) if getattr(settings, "quant_step", None) is None else float(settings.quant_step)
     tr = detect_head(first.signal, rate_hz, threshold=settings.threshold, quant_step=q)
