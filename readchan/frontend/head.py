@@ -94,6 +94,7 @@ def between_pulses_mask(n: int, rate_hz: float, tr: Transitions, *, guard: float
     return np.cumsum(edges[:-1]) == 0
 
 
+# Over 60 lines: one decision after another, each handing the next what it found (see the docstring).
 def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", channel: int = 0
                    ) -> tuple[Conditioned, Transitions, FrontEndRecord]:
     """Head-signal front end: condition and detect; then refine with the hum fitted on the quiet
