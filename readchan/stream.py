@@ -6,22 +6,30 @@ and the channels to decode.
 Output: :class:`readchan.results.Read` s with capture times and absolute sample positions,
 yielded as they are found (:func:`iter_reads`) or listed (:func:`decode_file`).
 
-How: one pass over the file in blocks (:mod:`readchan.io.blocks`, float32: exact for 16-bit
-PCM) feeds the activity gate (:mod:`readchan.frontend.activity`), which gives each channel's
-active spans.  Each span, padded by :data:`SETTLE_S` of the capture on either side so that the
-conditioning filters have settled before the first pulse, is read from the file and decoded as
-a stretch of its own (:func:`readchan.channel.decode_channel`), its reads moved to capture time.
-A span longer than :data:`PIECE_S` is cut at its quietest 20 ms blocks into pieces that overlap
-by :data:`OVERLAP_S` (longer than any swipe: a card passes in 1.7 s at 5 cm/s); a piece keeps the
-reads that start in its own part, so a read across a cut is decoded whole once.
+How: one pass over the file in blocks (:mod:`readchan.io.blocks`; integer PCM read as integers,
+exact) feeds the activity gate (:mod:`readchan.frontend.activity`), which gives each channel's
+active spans; the same pass finds the converter step, and one more read of the most energetic
+2¹⁸ samples the signal band, so these per-capture decisions are made once, as a whole-file
+decode makes them (``DecodeSettings.quant_step``, ``band_hz``).  Each span, padded by
+:data:`SETTLE_S` on either side (beyond the gate's guard) so that the conditioning filters have
+settled before the first pulse, is read from the file and decoded as a stretch of its own
+(:func:`readchan.channel.decode_channel`), its reads moved to capture time.  A span longer than
+:data:`PIECE_S` is cut at its quietest 20 ms blocks into pieces; where a cut is not in quiet
+capture, the pieces overlap by :data:`OVERLAP_S` (longer than any swipe: a card passes in 1.7 s
+at 5 cm/s) and each keeps the reads that start in its own part, so a read across a cut is
+decoded whole once.  With an executor (``jobs``), the stretches are decoded in parallel and their
+reads come out in the same order.
 
-A capture of at most :data:`WHOLE_S` is decoded whole, exactly as :func:`readchan.channel.decode_capture`
-decodes it; so is one whose stretches hold a tape read (timecode, cassette data: one read runs
-the whole tape, which stretches would split).  Per stretch, the front end's decisions (noise
-floor, hum, band) are taken from that stretch: the reads are the same (text, validity,
-direction, bits) as a whole-file decode's, their times agree to rounding, but the channel-wide
-records of a whole-file decode (``ChannelResult``: transitions, segments, status) are not made.
-A streamed read's ``segment.start``/``stop`` count transitions within its stretch.
+A capture of at most :data:`WHOLE_S` is decoded whole, exactly as
+:func:`readchan.channel.decode_capture` decodes it; so is one whose stretches hold a tape read
+(timecode, cassette data: one read runs the whole tape, which stretches would split).  The
+noise floor, hum and the corners matched to the pulses are still found per stretch: the reads
+are the same (text, validity, direction; bits within one clocking zero at a read's edge) as a
+whole-file decode's on the benchmark and test captures at 15 dB SNR and above, their times
+agree to rounding, but at lower SNR a marginal read can pass in one and fail in the other; and
+the channel-wide records of a whole-file decode (``ChannelResult``: transitions, segments,
+status) are not made.  A streamed read's ``segment.start``/``stop`` count transitions within
+its stretch.
 """
 
 from __future__ import annotations
@@ -42,10 +50,12 @@ from readchan.results import Read
 
 WHOLE_S = 120.0
 """Captures up to this long (s) are decoded whole."""
-SETTLE_S = 0.15
-"""Capture read on either side of an active span, s: the conditioning filters' start-up has
-died out by then (the 20 Hz baseline low-pass, Butterworth Q = 0.707, decays with a time
-constant of 1/(2π·20·0.707) ≈ 11 ms: e⁻¹³ after 0.15 s)."""
+SETTLE_S = 0.05
+"""Capture read on either side of an active span, s, beyond the gate's own guard of 0.1 s of
+quiet (:data:`readchan.frontend.activity.GUARD_S`): the conditioning filters' start-up has
+died out before the first pulse (the 20 Hz baseline low-pass, Butterworth Q = 0.707, decays
+with a time constant of 1/(2π·20·0.707) ≈ 11 ms: e⁻¹³ after the 0.15 s of settle and guard),
+and the quiet either side still gives the noise and hum estimates 0.3 s to work on."""
 PIECE_S = 30.0
 """Longest stretch decoded at once, s (a piece: 1.4 M samples at 48 kHz, about 80 MB at the peak)."""
 OVERLAP_S = 2.5
@@ -197,6 +207,33 @@ def _capture_band_hz(path: str, channel: int, gate: Activity, n: int, rate_hz: f
     return signal_band_hz(y, rate_hz) or 0.0
 
 
+QUIET_RUN = 3
+"""Energy blocks (20 ms each) that must all be quiet, the cut's and one on either side, for a
+cut there to need no overlap: 60 ms without pulses is longer than the segmenter's 20 ms gap,
+so no read runs across it."""
+
+
+def _quiet_blocks(energies: np.ndarray, floor: float) -> np.ndarray:
+    """Per energy block: it and its neighbours (:data:`QUIET_RUN` in all) are all below the
+    gate's activity threshold."""
+    from readchan.frontend.activity import ACTIVE_RATIO
+
+    if not floor > 0:
+        return np.zeros(energies.size, bool)
+    q = energies <= ACTIVE_RATIO * floor
+    half = QUIET_RUN // 2
+    run = np.convolve(q.astype(np.int32), np.ones(QUIET_RUN, np.int32), mode="same")
+    run[:half] = 0
+    run[run.size - half:] = 0
+    return run == QUIET_RUN
+
+
+def _quiet_at(quiet: np.ndarray, cut: int, block: int) -> bool:
+    """A cut at sample ``cut`` lies in a quiet run of blocks (:func:`_quiet_blocks`)."""
+    k = cut // block
+    return 0 <= k < quiet.size and bool(quiet[k]) and cut % block == 0
+
+
 def _plan(gates: list[Activity], chans: list[int], n: int, rate_hz: float) -> list[_Piece]:
     """Every channel's pieces, channel by channel and in time order."""
     settle, overlap = int(SETTLE_S * rate_hz), int(OVERLAP_S * rate_hz)
@@ -205,8 +242,15 @@ def _plan(gates: list[Activity], chans: list[int], n: int, rate_hz: float) -> li
         energies = g.energies()
         for span in g.spans():
             parts = _pieces(span, energies, g.block, rate_hz)
-            margin = settle if len(parts) == 1 else overlap
-            out += [_Piece(c, max(0, a - margin), min(n, b + margin), a, b, len(parts) == 1) for a, b in parts]
+            if len(parts) == 1:
+                out.append(_Piece(c, max(0, span[0] - settle), min(n, span[1] + settle), *span, True))
+                continue
+            quiet = _quiet_blocks(energies, g.floor())
+            for a, b in parts:
+                # a cut in quiet capture has no read across it: the filters' settling will do there
+                lo = a - (settle if a == span[0] or _quiet_at(quiet, a, g.block) else overlap)
+                hi = b + (settle if b == span[1] or _quiet_at(quiet, b, g.block) else overlap)
+                out.append(_Piece(c, max(0, lo), min(n, hi), a, b, False))
     return out
 
 

@@ -13,6 +13,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from readchan import stream
@@ -209,3 +210,25 @@ def test_a_stretch_uses_the_signal_band_a_whole_file_decode_finds(tmp_path, monk
     stream.decode_file(path, whole_s=1.0)
     whole = decode_capture(load_capture(path))[0].front_end.band_hz
     assert bands and set(bands) == {whole or 0.0}
+
+
+def test_a_cut_in_quiet_capture_needs_no_overlap(tmp_path, monkeypatch):
+    # bench density: 0.25 s gaps merge the swipes into one span, cut every 4 s at a quiet block
+    monkeypatch.setattr(stream, "PIECE_S", 4.0)
+    path = tmp_path / "bench.wav"
+    bench.build(path, 0.25, 20.0)
+    from readchan.io.blocks import audio_info
+
+    info = audio_info(path)
+    gates, _ = stream._gate(str(path), [0], info.rate_hz, info.frames, lambda f: None, info.subtype)
+    plan = stream._plan(gates, [0], info.frames, info.rate_hz)
+    settle = int(stream.SETTLE_S * info.rate_hz)
+    assert len(plan) >= 4
+    assert all(pc.own_lo - pc.lo <= settle and pc.hi - pc.own_hi <= settle for pc in plan)
+    _check_same(stream.decode_file(path, whole_s=5.0), _whole(path))
+
+
+def test_quiet_runs_need_three_quiet_blocks():
+    e = np.array([9, 1, 1, 1, 9, 1, 1, 9, 1, 1, 1, 1], float)
+    assert stream._quiet_blocks(e, 1.0).tolist() == [False, False, True, False, False, False, False,
+                                                      False, False, True, True, False]
