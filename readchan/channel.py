@@ -80,6 +80,9 @@ class DecodeSettings:
     band_hz : the signal band of the whole capture (Hz; 0 for "none found"), when it was found
         once for the capture (:func:`readchan.frontend.condition.signal_band_hz` over its most
         energetic stretch); None: found in the samples decoded.
+    hum_hz : the mains frequency of the whole capture (Hz; 0 for "no hum worth taking out"),
+        when it was found once for the capture (``notch`` auto: the hum is then fitted at that
+        frequency alone); None: searched for in the samples decoded.
     """
 
     fmt: CharFormat | None = None
@@ -95,6 +98,7 @@ class DecodeSettings:
     format: str = "auto"
     quant_step: float | None = None
     band_hz: float | None = None
+    hum_hz: float | None = None
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -116,6 +120,9 @@ class DecodeSettings:
         if self.band_hz is not None and not (isinstance(self.band_hz, (int, float)) and
                                              np.isfinite(self.band_hz) and self.band_hz >= 0):
             raise ParameterError(f"band_hz must be a finite frequency of at least 0 Hz, was {self.band_hz!r}")
+        if self.hum_hz is not None and not (isinstance(self.hum_hz, (int, float)) and
+                                            (self.hum_hz == 0 or 40.0 <= self.hum_hz <= 70.0)):
+            raise ParameterError(f"hum_hz must be 0 or a mains frequency of 40–70 Hz, was {self.hum_hz!r}")
         if isinstance(self.notch, str) and self.notch.strip().lower() in ("auto", "off"):
             object.__setattr__(self, "notch", Notch(self.notch.strip().lower()))
         else:

@@ -43,10 +43,10 @@ import numpy as np
 
 from readchan.channel import DecodeSettings, decode_capture, decode_channel
 from readchan.frontend.activity import Activity
-from readchan.frontend.detect import quantisation_step
-from readchan.io.blocks import audio_info, fast_dtype, iter_blocks, read_span
+from readchan.io.blocks import audio_info, read_span
 from readchan.io.capture import load_capture
 from readchan.results import Read
+from readchan.survey import survey
 
 WHOLE_S = 120.0
 """Captures up to this long (s) are decoded whole."""
@@ -60,11 +60,6 @@ PIECE_S = 30.0
 """Longest stretch decoded at once, s (a piece: 1.4 M samples at 48 kHz, about 80 MB at the peak)."""
 OVERLAP_S = 2.5
 """Capture two neighbouring pieces of a long span share, s: longer than a card swipe."""
-GATE_BLOCK = 960 * 256
-"""Frames read at a time for the gate's pass (a whole number of 20 ms energy blocks at 48 kHz,
-so that no part block is carried from one read to the next)."""
-
-
 def _pieces(span: tuple[int, int], energies: np.ndarray, block: int, rate_hz: float) -> list[tuple[int, int]]:
     """The owned parts ``(lo, hi)`` (samples) a span is cut into, cut at its quietest block
     within ±2 s of every :data:`PIECE_S`."""
@@ -105,32 +100,6 @@ Progress = Callable[[float], None]
 the last call is 1.0)."""
 GATE_SHARE = 0.1
 """Share of the progress the gate's pass counts for."""
-
-
-QUANT_SAMPLES = 200_000
-"""Samples :func:`readchan.frontend.detect.quantisation_step` looks at (its own stride rule)."""
-
-
-def _gate(path: str, chans: list[int], rate_hz: float, n: int, progress: Progress, subtype: str = ""
-          ) -> tuple[list[Activity], list[float]]:
-    """The gate of each channel, and each channel's converter step found in the same every
-    ``n // 200000``-th sample a whole-capture decode looks at (so a stretch uses the step of
-    the whole capture, not one guessed from its own few samples)."""
-    gates = [Activity(rate_hz) for _ in chans]
-    stride = max(1, n // QUANT_SAMPLES)
-    picks: list[list[np.ndarray]] = [[] for _ in chans]
-    done = 0
-    dtype, scale = fast_dtype(subtype)
-    for blk in iter_blocks(path, GATE_BLOCK, dtype=dtype):
-        fresh = blk.samples[blk.overlap:]
-        first = (-(blk.start + blk.overlap)) % stride
-        for g, c, pick in zip(gates, chans, picks):
-            g.feed(blk.samples[:, c], scale)
-            pick.append(fresh[first::stride, c] * scale)
-        done += fresh.shape[0]
-        progress(GATE_SHARE * min(1.0, done / max(1, n)))
-    steps = [quantisation_step(np.concatenate(p)) if p else 0.0 for p in picks]
-    return gates, steps
 
 
 def _no_progress(fraction: float) -> None:
@@ -175,36 +144,6 @@ class _PieceTask:
             if pc.keep_all or pc.own_lo <= r.start_s * self.rate_hz < pc.own_hi:
                 kept.append(r)
         return res.family, kept
-
-
-BAND_BLOCK = 1 << 18
-"""Samples of the stretch the capture's signal band is found in (as a whole-file decode does:
-:func:`readchan.frontend.condition.signal_band_hz`)."""
-
-
-def _capture_band_hz(path: str, channel: int, gate: Activity, n: int, rate_hz: float,
-                     settings: DecodeSettings) -> float | None:
-    """The signal band (Hz; 0 for none) of one channel of the whole capture, found once, as a
-    whole-file decode finds it: over the most energetic of its aligned :data:`BAND_BLOCK`-sample
-    blocks (chosen here from the gate's block variances), conditioned as the head front end
-    conditions it; None where the front end would not look for one (a set low-pass, no auto band)."""
-    from readchan.frontend.condition import ConditionSettings, condition, signal_band_hz
-
-    cs = settings.condition
-    if not settings.auto_band or cs.lowpass_hz is not None or n <= BAND_BLOCK:
-        return None
-    if not isinstance(settings.notch, str) and not hasattr(settings.notch, "value"):
-        cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (float(settings.notch),), cs.notch_q)
-    e = gate.energies()
-    which = (np.arange(e.size) * gate.block + gate.block // 2) // BAND_BLOCK
-    nb = n // BAND_BLOCK
-    keep = which < nb
-    k = int(np.argmax(np.bincount(which[keep], weights=e[keep], minlength=nb)))
-    settle = int(SETTLE_S * rate_hz)
-    lo, hi = max(0, k * BAND_BLOCK - settle), min(n, (k + 1) * BAND_BLOCK + settle)
-    x = np.ascontiguousarray(read_span(path, lo, hi)[:, channel])
-    y = condition(x, rate_hz, cs, channel=channel).signal[k * BAND_BLOCK - lo:][:BAND_BLOCK]
-    return signal_band_hz(y, rate_hz) or 0.0
 
 
 QUIET_RUN = 3
@@ -258,18 +197,12 @@ def _stretch_reads(path: str, chans: list[int], n_channels: int, n: int, rate_hz
                    settings: DecodeSettings, progress: Progress, executor: Executor | None) -> Iterator[Read]:
     from readchan.batch import in_order
 
-    gates, steps = _gate(path, chans, rate_hz, n, progress, audio_info(path).subtype)
+    surveys = survey(path, chans, rate_hz, n, audio_info(path).subtype, progress, GATE_SHARE)
+    gates = [sv.gate for sv in surveys]
     plan = _plan(gates, chans, n, rate_hz)
     total = sum(pc.own_hi - pc.own_lo for pc in plan) or 1
     done = 0
-    decided = {}
-    for g, c, q in zip(gates, chans, steps):
-        d = {} if settings.quant_step is not None else {"quant_step": q}
-        if settings.band_hz is None and g.spans():
-            band = _capture_band_hz(path, c, g, n, rate_hz, settings)
-            if band is not None:
-                d["band_hz"] = band
-        decided[c] = d
+    decided = {sv.channel: sv.decisions(path, settings) for sv in surveys}
     task = _PieceTask(path, n_channels, rate_hz, settings, decided)
     window = 2 * getattr(executor, "_max_workers", 1)
     for pc, (family, reads) in zip(plan, in_order(task, plan, executor, window=window)):

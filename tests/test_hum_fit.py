@@ -31,3 +31,22 @@ def test_hum_between_grid_points_is_found_to_the_fine_step():
     x = 0.05 * np.sin(2 * np.pi * 50.37 * np.arange(n) / rate + 1.0) + rng.normal(0, 0.01, n)
     fit = fit_hum(x, rate, np.ones(n, bool))
     assert fit is not None and abs(fit.freq_hz - 50.37) <= 0.011
+
+
+def test_a_frequency_decided_for_the_capture_is_fitted_as_given():
+    rate = 48_000.0
+    rng = np.random.default_rng(9)
+    n = int(1.0 * rate)
+    x = 0.05 * np.sin(2 * np.pi * 59.9 * np.arange(n) / rate) + rng.normal(0, 0.01, n)
+    fit = fit_hum(x, rate, np.ones(n, bool), freq_hz=59.9)
+    assert fit is not None and fit.freq_hz == 59.9 and fit.amplitude == pytest.approx(0.05, rel=0.05)
+
+
+@pytest.mark.parametrize("field, value", [("hum_hz", 30.0), ("hum_hz", float("nan")), ("band_hz", -1.0),
+                                          ("band_hz", float("inf")), ("quant_step", -1e-5), ("quant_step", "x")])
+def test_per_capture_decisions_out_of_range_are_parameter_errors(field, value):
+    from readchan.channel import DecodeSettings
+    from readchan.errors import ParameterError
+
+    with pytest.raises(ParameterError, match=field):
+        DecodeSettings(**{field: value})

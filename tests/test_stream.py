@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from readchan import stream
+from readchan import stream, survey
 from readchan.channel import decode_capture
 from readchan.io.capture import load_capture
 
@@ -75,7 +75,7 @@ def test_reads_across_a_piece_edge_are_found_once(continuous, monkeypatch, piece
 
 @pytest.mark.parametrize("block", [3000, 65536])
 def test_small_gate_blocks_give_the_same_reads(idle, monkeypatch, block):
-    monkeypatch.setattr(stream, "GATE_BLOCK", block)
+    monkeypatch.setattr(survey, "GATE_BLOCK", block)
     _check_same(stream.decode_file(idle, whole_s=10.0), _whole(idle))
 
 
@@ -130,7 +130,7 @@ def _capture(path: Path, *, lead_s: float, snr_db: float, swipes: int, gap_s: fl
 def test_a_swipe_at_any_offset_to_the_gate_blocks_decodes_as_whole(tmp_path, monkeypatch, offset):
     # the swipe's first sample falls at a different place in the gate's 3000-frame reading blocks
     # and its 960-sample (20 ms) energy blocks
-    monkeypatch.setattr(stream, "GATE_BLOCK", 3000)
+    monkeypatch.setattr(survey, "GATE_BLOCK", 3000)
     path = _capture(tmp_path / "one.wav", lead_s=(24_000 + offset) / 48_000, snr_db=30.0, swipes=2, gap_s=1.5)
     whole = _whole(path)
     assert len(whole) == 2 and all(r.valid for r in whole)
@@ -192,24 +192,32 @@ def test_a_stretch_uses_the_whole_captures_converter_step(tmp_path, monkeypatch)
 
 
 @pytest.mark.parametrize("capture", ["idle", "weak", "bench"])
-def test_a_stretch_uses_the_signal_band_a_whole_file_decode_finds(tmp_path, monkeypatch, idle, capture):
-    # the band is decided once for the capture, over its most energetic 2**18-sample block as the
-    # whole-file front end does, and handed to every stretch (0 where none was found)
+def test_the_per_capture_decisions_are_those_of_a_whole_file_decode(tmp_path, monkeypatch, idle, capture):
+    # converter step, signal band and hum frequency are decided once for the capture, the way
+    # the whole-file front end decides them, and handed to every stretch (0: none found)
     from readchan.channel import decode_channel as real
 
     path = {"idle": lambda: idle,
             "weak": lambda: _capture(tmp_path / "weak.wav", lead_s=1.0, snr_db=12.0, swipes=4, gap_s=2.5),
             "bench": lambda: bench.build(tmp_path / "bench.wav", 0.25, 12.0) and tmp_path / "bench.wav"}[capture]()
-    bands = []
+    seen = []
 
     def spy(x, rate_hz, settings, **kw):
-        bands.append(settings.band_hz)
+        seen.append((settings.quant_step, settings.band_hz, settings.hum_hz))
         return real(x, rate_hz, settings, **kw)
 
     monkeypatch.setattr(stream, "decode_channel", spy)
     stream.decode_file(path, whole_s=1.0)
-    whole = decode_capture(load_capture(path))[0].front_end.band_hz
-    assert bands and set(bands) == {whole or 0.0}
+    fe = decode_capture(load_capture(path))[0].front_end
+    assert seen and set(seen) == {(fe.quant_step, fe.band_hz or 0.0, fe.hum_hz or 0.0)}
+
+
+def test_a_capture_without_quiet_leaves_the_hum_to_each_stretch(continuous):
+    from readchan.io.blocks import audio_info
+
+    info = audio_info(continuous)
+    sv = survey.survey(str(continuous), [0], info.rate_hz, info.frames, info.subtype)[0]
+    assert sv.gate.spans() == [(0, info.frames)] and sv.hum_hz() is None
 
 
 def test_a_cut_in_quiet_capture_needs_no_overlap(tmp_path, monkeypatch):
@@ -220,8 +228,8 @@ def test_a_cut_in_quiet_capture_needs_no_overlap(tmp_path, monkeypatch):
     from readchan.io.blocks import audio_info
 
     info = audio_info(path)
-    gates, _ = stream._gate(str(path), [0], info.rate_hz, info.frames, lambda f: None, info.subtype)
-    plan = stream._plan(gates, [0], info.frames, info.rate_hz)
+    surveys = survey.survey(str(path), [0], info.rate_hz, info.frames, info.subtype)
+    plan = stream._plan([sv.gate for sv in surveys], [0], info.frames, info.rate_hz)
     settle = int(stream.SETTLE_S * info.rate_hz)
     assert len(plan) >= 4
     assert all(pc.own_lo - pc.lo <= settle and pc.hi - pc.own_hi <= settle for pc in plan)

@@ -332,9 +332,10 @@ def _fundamental_residuals(t: np.ndarray, y: np.ndarray, freqs_hz: np.ndarray) -
 
 
 def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: float = 8.0,
-            min_level: float = 0.02) -> HumFit | None:
+            min_level: float = 0.02, freq_hz: float | None = None) -> HumFit | None:
     """Fit mains hum (50 or 60 Hz ± 0.6 Hz, with harmonics 2 and 3) to the samples where
-    ``quiet`` is True, by linear least squares on a frequency grid of 0.02 Hz.
+    ``quiet`` is True, by linear least squares on a frequency grid of 0.02 Hz (or at
+    ``freq_hz`` alone, Hz, when the frequency was found once for the whole capture).
 
     Fitting only where there are no pulses keeps the data out of the estimate: a stripe's
     own bit pattern can have a spectral line near 50 or 60 Hz, which a notch would eat.
@@ -353,22 +354,31 @@ def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: f
     w = max(1, int(rate_hz // 2000))
     lo = np.clip(q - w // 2, 0, x.size - w)
     smooth = x[lo[:, None] + np.arange(w)].mean(axis=1)
-    t, y = q / rate_hz, smooth - np.mean(smooth)
+    peak = float(np.percentile(np.abs(x[:: max(1, x.size // 500_000)]), 99.9))
+    return fit_hum_points(q / rate_hz, smooth, peak, significance=significance, min_level=min_level,
+                          freq_hz=freq_hz)
 
-    def fit(f: float, harmonics: bool):
-        A = _hum_basis(t, f) if harmonics else _hum_basis(t, f, harmonics=1)
+
+def fit_hum_points(t_s: np.ndarray, values: np.ndarray, peak: float, *, significance: float = 8.0,
+                   min_level: float = 0.02, freq_hz: float | None = None) -> HumFit | None:
+    """:func:`fit_hum` on quiet samples already taken: their times ``t_s`` (s) and (boxcar-
+    averaged) values, and the capture's peak level ``peak`` (99.9th percentile of |x|)."""
+    t, y = np.asarray(t_s, float), np.asarray(values, float) - np.mean(values)
+
+    def fit(f: float):
+        A = _hum_basis(t, f)
         coef, *_ = np.linalg.lstsq(A, y, rcond=None)
         return float(np.sum((y - A @ coef) ** 2)), f, coef
 
-    # coarse search on the fundamental (0.1 Hz), then 0.02 Hz around the best, then harmonics
-    grid = np.concatenate([np.arange(m - 0.6, m + 0.6001, 0.1) for m in (50.0, 60.0)])
-    f0 = float(grid[int(np.argmin(_fundamental_residuals(t, y, grid)))])
-    fine = np.arange(f0 - 0.1, f0 + 0.1001, 0.02)
-    best = fit(float(fine[int(np.argmin(_fundamental_residuals(t, y, fine)))]), True)
-    res, f, coef = best
-    sigma = math.sqrt(res / max(q.size - 6, 1))
+    if freq_hz is None:
+        # coarse search on the fundamental (0.1 Hz), then 0.02 Hz around the best, then harmonics
+        grid = np.concatenate([np.arange(m - 0.6, m + 0.6001, 0.1) for m in (50.0, 60.0)])
+        f0 = float(grid[int(np.argmin(_fundamental_residuals(t, y, grid)))])
+        fine = np.arange(f0 - 0.1, f0 + 0.1001, 0.02)
+        freq_hz = float(fine[int(np.argmin(_fundamental_residuals(t, y, fine)))])
+    res, f, coef = fit(float(freq_hz))
+    sigma = math.sqrt(res / max(t.size - 6, 1))
     amp = float(math.hypot(coef[0], coef[1]))
-    peak = float(np.percentile(np.abs(x[:: max(1, x.size // 500_000)]), 99.9))
-    if amp < significance * sigma * math.sqrt(2.0 / q.size) or amp < min_level * peak:
+    if amp < significance * sigma * math.sqrt(2.0 / t.size) or amp < min_level * peak:
         return None
     return HumFit(float(f), amp, coef, sigma)

@@ -33,6 +33,7 @@ class HeadSettings(Protocol):
     auto_band: bool
     quant_step: float | None    # the converter step, capture units, when known for the capture
     band_hz: float | None       # the capture's signal band, Hz (0: none), when found once for it
+    hum_hz: float | None        # the capture's mains frequency, Hz (0: no hum), when found once for it
 
 
 @dataclass(frozen=True)
@@ -118,7 +119,8 @@ def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", chan
     q = quantisation_step(x) if getattr(settings, "quant_step", None) is None else float(settings.quant_step)
     tr = detect_head(first.signal, rate_hz, threshold=settings.threshold, quant_step=q)
     refined = False
-    if settings.notch == "auto":
+    hum_hint = getattr(settings, "hum_hz", None)
+    if settings.notch == "auto" and hum_hint != 0.0:
         quiet = quiet_mask(x.size, rate_hz, segment(tr))
         level = 0.02
         if np.count_nonzero(quiet) < 3 * rate_hz / 50.0:
@@ -127,7 +129,7 @@ def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", chan
             # near 50 or 60 Hz), so only hum strong enough to matter (10 % of the peak) counts.
             quiet = between_pulses_mask(x.size, rate_hz, tr, guard=0.4)
             level = 0.1
-        fit = fit_hum(cond.signal, rate_hz, quiet, min_level=level)
+        fit = fit_hum(cond.signal, rate_hz, quiet, min_level=level, freq_hz=hum_hint)
         if fit is not None:
             hum = fit.freq_hz
             cond = Conditioned(cond.signal - fit.waveform(x.size, rate_hz), rate_hz, cond.dc_offset, channel)
