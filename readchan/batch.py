@@ -83,8 +83,9 @@ class CaptureResult:
         return [r for ch in self.channels for r in ch.reads]
 
 
-def _load(path: str, opts: BatchOptions, source: str):
-    """(channel results, duration_s, rate_hz, timescale_s) of the capture at ``path``."""
+def _load(path: str, opts: BatchOptions, source: str, progress=None):
+    """(channel results, duration_s, rate_hz, timescale_s) of the capture at ``path``;
+    ``progress`` hears the fraction done of a streamed capture (:func:`_streamed`)."""
     from readchan.channel import DecodeSettings, decode_capture
     from readchan.errors import CaptureError
     from readchan.io.vcd import VcdComparator, is_vcd, load_vcd
@@ -106,7 +107,7 @@ def _load(path: str, opts: BatchOptions, source: str):
         return [decode_strobe(got, settings)], got.duration_s, 1.0 / got.timescale_s, got.timescale_s
     from readchan.io.capture import load_capture
 
-    streamed = _streamed(path, settings, chans, source)
+    streamed = _streamed(path, settings, chans, source, progress)
     if streamed is not None:
         return streamed
     cap = load_capture(path, rate_hz=opts.rate_hz)
@@ -120,11 +121,12 @@ STREAM_SUBTYPE_BYTES = {"PCM_U8": 1, "PCM_S8": 1, "PCM_16": 2, "PCM_24": 3, "PCM
 header's length can be checked against the file's size before it is trusted."""
 
 
-def _streamed(path: str, settings, chans, source: str):
+def _streamed(path: str, settings, chans, source: str, progress=None):
     """(channel results, duration_s, rate_hz, None) of an audio capture longer than
     :data:`readchan.stream.WHOLE_S`, decoded span by span from the file (:mod:`readchan.stream`),
     so memory does not grow with its length; None for a shorter capture or one that is not audio.
-    Each channel's result holds its reads only (no channel-wide transitions or state)."""
+    Each channel's result holds its reads only (no channel-wide transitions or state).
+    ``progress`` (:data:`readchan.stream.Progress`) hears the fraction of the file decoded."""
     from readchan.errors import CaptureError
     from readchan.io.blocks import audio_info
     from readchan.results import streamed_channel_result
@@ -139,15 +141,28 @@ def _streamed(path: str, settings, chans, source: str):
     width = STREAM_SUBTYPE_BYTES.get(info.subtype)
     if width is None or info.frames * info.channels * width > os.path.getsize(path):
         return None     # compressed, or a header claiming more than the file holds: the loader salvages it whole
-    reads = [replace(r, source=source) for r in decode_file(path, settings, chans, whole_s=WHOLE_S)]
+    reads = [replace(r, source=source) for r in decode_file(path, settings, chans, whole_s=WHOLE_S,
+                                                                  progress=progress)]
     out = [streamed_channel_result(c, info.rate_hz, tuple(r for r in reads if r.channel == c))
            for c in (range(info.channels) if chans is None else chans)]
     return out, info.frames / info.rate_hz, info.rate_hz, None
 
 
-def decode_source(src, opts: BatchOptions = BatchOptions()) -> CaptureResult:
+def decode_source(src, opts: BatchOptions = BatchOptions(), *, progress=None) -> CaptureResult:
     """Decode one capture (a path or :class:`readchan.io.sources.Stdin`); never raises for a
-    bad capture: its error is on the result (an unforeseen one as an internal error, code 4)."""
+    bad capture: its error is on the result (an unforeseen one as an internal error, code 4).
+
+    ``progress`` (:data:`readchan.stream.Progress`: the fraction done, 0 to 1, never
+    decreasing) is told how far a long streamed capture is; its last call is 1.0, whatever
+    the capture and even after an error.  It runs where the decode runs (not across processes)."""
+    try:
+        return _decode_source(src, opts, progress)
+    finally:
+        if progress is not None:
+            progress(1.0)
+
+
+def _decode_source(src, opts: BatchOptions, progress) -> CaptureResult:
     from readchan.io.sources import Stdin, stdin_file
     from readchan.report.render import exit_code
 
@@ -158,11 +173,11 @@ def decode_source(src, opts: BatchOptions = BatchOptions()) -> CaptureResult:
                 raise _stdin_error("standard input is empty")
             with stdin_file(src) as tmp:
                 try:
-                    chans, dur, rate, ts = _load(str(tmp), opts, source)
+                    chans, dur, rate, ts = _load(str(tmp), opts, source, progress)
                 except ReadchanError as e:
                     raise type(e)(str(e).replace(str(tmp), source)) from None
         else:
-            chans, dur, rate, ts = _load(source, opts, source)
+            chans, dur, rate, ts = _load(source, opts, source, progress)
     except ReadchanError as e:
         return CaptureResult(source, error=" ".join(str(e).split()), exit_code=e.exit_code)
     except Exception as e:  # noqa: BLE001 - one capture's bug must not stop the batch

@@ -155,9 +155,9 @@ def test_each_json_line_is_out_before_the_next_capture_is_decoded(monkeypatch, c
     seen = []
     real = cli_batch.decode_source
 
-    def spy(src, opts):
+    def spy(src, opts, **kw):
         seen.append(buf.getvalue().count("\n"))          # lines already written when this capture starts
-        return real(src, opts)
+        return real(src, opts, **kw)
 
     monkeypatch.setattr(cli_batch, "decode_source", spy)
     monkeypatch.setattr(sys, "stdout", buf)

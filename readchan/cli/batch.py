@@ -179,10 +179,17 @@ def _emit(r: Rendered, jsonl: bool) -> None:
 
 
 def run_batch(sources: list, opts: BatchOptions, ro: RenderOptions, *, jobs: int = 1, jsonl: bool = False,
-              on_each=None) -> Totals:
+              on_each=None, quiet: bool = False) -> Totals:
     """Decode, render and emit every capture in input order; ``on_each(rendered)`` sees each
     after it is emitted (its text dropped), for the closing outputs.  Returns the totals; prints
-    the summary on stderr for more than one capture."""
+    the summary on stderr for more than one capture.
+
+    A progress bar (:class:`readchan.cli.progress.ProgressBar`) counts the captures done on
+    stderr when it is a terminal and the batch takes over a second, unless ``quiet``; in one
+    process the capture under way moves it by its own fraction done (a long streamed capture),
+    with ``--jobs`` only finished captures do."""
+    from readchan.cli.progress import ProgressBar
+
     start = time.perf_counter()
     totals = Totals()
     pool = None
@@ -191,18 +198,26 @@ def run_batch(sources: list, opts: BatchOptions, ro: RenderOptions, *, jobs: int
 
         _preload()
         pool = ProcessPoolExecutor(max_workers=jobs)
+    bar = ProgressBar(len(sources), err, description="decoding", quiet=quiet)
     try:
-        if pool is None:
-            def task(src):
-                return render(decode_source(src, opts), ro, None if jsonl or not ro.text else out)
-        else:
-            task = RenderTask(opts, ro)
-        for r in in_order(task, sources, pool, window=4 * jobs):
-            _emit(r, jsonl)
-            totals.add(r)
-            r.text = None
-            if on_each is not None:
-                on_each(r)
+        with bar:
+            if pool is None:
+                order = iter(range(len(sources)))
+
+                def task(src):
+                    res = decode_source(src, opts, progress=bar.part(next(order)))
+                    with bar.paused():          # the text goes to stdout as it is rendered
+                        return render(res, ro, None if jsonl or not ro.text else out)
+            else:
+                task = RenderTask(opts, ro)
+            for r in in_order(task, sources, pool, window=4 * jobs):
+                with bar.paused():
+                    _emit(r, jsonl)
+                totals.add(r)
+                bar.done(len(totals.rows))
+                r.text = None
+                if on_each is not None:
+                    on_each(r)
     finally:
         if pool is not None:
             pool.shutdown(cancel_futures=True)

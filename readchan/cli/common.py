@@ -197,3 +197,5 @@ FIELD_CHECK = typer.Option(True, "--field-check/--no-field-check",
                            help="A read claiming an ISO/IEC 7813 layout (track 1 format B, track 2) that breaks it "
                                 "(account digits, Luhn check digit, expiry) is not valid; turn off for non-financial "
                                 "cards that reuse the layouts.")
+QUIET = typer.Option(False, "--quiet", "-q", help="Draw no progress bar on stderr (one is drawn only when stderr is a "
+                                                 "terminal and the work takes over a second).")

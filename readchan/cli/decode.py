@@ -17,9 +17,9 @@ from typing import Optional
 
 import typer
 
-from readchan.cli.common import (CHANNEL, FIELD_CHECK, HIGHPASS, JSON, LOWPASS, NOTCH, RATE_HZ, RATE_OLD, SIGNAL,
-                                 SIGNAL_OLD, TRACK, UNMASK, Kind, _channels, _settings, app, err, out, renamed,
-                                 schema)
+from readchan.cli.common import (CHANNEL, FIELD_CHECK, HIGHPASS, JSON, LOWPASS, NOTCH, QUIET, RATE_HZ, RATE_OLD,
+                                 SIGNAL, SIGNAL_OLD, TRACK, UNMASK, Kind, _channels, _settings, app, err, out,
+                                 renamed, schema)
 
 CAPTURES = typer.Argument(..., help="Captures: WAV/FLAC/AIFF audio, CSV tables or VCD files; directories (every "
                                     "capture below), quoted globs, or - for standard input.")
@@ -71,6 +71,7 @@ def decode(
                                                    help="Write one row per transition to FILE."),
     force: bool = typer.Option(False, help="Overwrite the output files (--bytes-out, --vcd-out, --bits-csv, "
                                            "--transitions-csv) if they exist (regular files only)."),
+    quiet: bool = QUIET,
 ) -> None:
     """Decode what CAPTURE files hold: card tracks (characters, parity, LRC, fields), timecode
     frames, cassette bytes or raw F2F bits."""
@@ -102,7 +103,7 @@ def decode(
         kept["transitions"] += r.transitions_rows
         kept["last"] = r
 
-    totals = run_batch(sources, opts, ro, jobs=jobs, jsonl=jsonl, on_each=collect)
+    totals = run_batch(sources, opts, ro, jobs=jobs, jsonl=jsonl, on_each=collect, quiet=quiet)
     _write_outputs(files, kept, force, unmask)
     if as_json:
         print(json.dumps({"schema": schema("decode"), "reads": kept["reads"], "channels": kept["channels"]}, indent=2))
