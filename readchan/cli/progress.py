@@ -26,7 +26,8 @@ DELAY_S = 1.0
 """Seconds of work before the bar is drawn."""
 
 class ProgressBar:
-    """A bar over ``total`` items of work, drawn on ``console`` (a stderr console).
+    """A bar over ``total`` items of work, drawn on ``console`` (a stderr console) once
+    ``delay_s`` (default :data:`DELAY_S`) has passed.
 
     ``quiet`` or a console that is not a terminal: nothing is ever drawn, every call is cheap.
     The value shown never decreases: it is the items done plus the fraction of the one under
@@ -34,7 +35,7 @@ class ProgressBar:
     """
 
     def __init__(self, total: int, console: Console, *, description: str = "decoding", quiet: bool = False,
-                 delay_s: float = DELAY_S) -> None:
+                 delay_s: float | None = None) -> None:
         self.total = max(1, int(total))
         self.enabled = not quiet and console.is_terminal
         self.value = 0.0
@@ -51,7 +52,7 @@ class ProgressBar:
                              TextColumn("{task.fields[count]}"), TimeElapsedColumn(), TimeRemainingColumn(),
                              console=console, transient=True, redirect_stdout=False, redirect_stderr=False)
         self._task = self._bar.add_task(description, total=float(self.total), count=self._count())
-        self.delay_s = float(delay_s)
+        self.delay_s = DELAY_S if delay_s is None else float(delay_s)
 
     def _count(self) -> str:
         return f"{int(self.value)}/{self.total}" if self.total > 1 else ""

@@ -13,7 +13,7 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 from rich.text import Text
 
-from readchan.cli.common import Profile, app, err, out, schema, warn_line
+from readchan.cli.common import QUIET, Profile, app, err, out, schema, warn_line
 from readchan.errors import ParameterError
 
 SWEPT = {"snr-db": "snr_db", "jitter": "jitter", "variation": "variation", "pw50-cell": "pw50_cell",
@@ -142,6 +142,7 @@ def sweep(
     plot: Optional[Path] = typer.Option(None, "--plot", help="Write a PNG curve of success and character error rate "
                                         "(after the table or JSON is printed)."),
     force: bool = typer.Option(False, help="Overwrite the --plot file if it exists (a regular file only)."),
+    quiet: bool = QUIET,
 ) -> None:
     """Sweep one impairment: success, character errors and false accepts per step; where it drops below 99 %."""
     # over 60 lines only by its option list (typer reads the options from the signature)
@@ -165,7 +166,9 @@ def sweep(
 
     columns = (TextColumn("sweeping {task.description}"), BarColumn(), MofNCompleteColumn(),
                TimeRemainingColumn())
-    with Progress(*columns, console=err, transient=True, disable=not err.is_terminal) as bar:
+    # stdout not redirected: rich would otherwise send what is printed there to this stderr console
+    with Progress(*columns, console=err, transient=True, disable=quiet or not err.is_terminal,
+                  redirect_stdout=False, redirect_stderr=False) as bar:
         task = bar.add_task(name, total=len(spec.values) * spec.trials)
         result = run_sweep(spec, workers=workers, progress=lambda done, total: bar.update(task, completed=done))
 

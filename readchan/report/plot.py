@@ -7,7 +7,7 @@ Each read gets five panels, legible for a capture of 10,000 bits:
 
 1. the waveform over the read, min/max-decimated to the panel's width, with the read's span,
    its transitions and its anomalies marked;
-2. a zoom at the start sentinel: samples, detected pulses, every bit's value over its cell and
+2. a zoom at the start sentinel: samples (min/max-decimated beyond :data:`ZOOM_MAX_POINTS`), detected pulses, every bit's value over its cell and
    the character boundaries with the characters (account numbers masked: a masked character
    gets neither its label nor its bits' values, which would spell it out);
 3. the same zoom around the bit of least timing margin;
@@ -37,7 +37,13 @@ ZOOM_BITS = 56
 """Bits shown in each zoomed panel."""
 
 OVERVIEW_BINS = 2500
-"""Min/max bins of the overview waveform."""
+"""Min/max bins of the overview waveform (about two per pixel column of a 13-inch panel at 100 dpi)."""
+
+ZOOM_MAX_POINTS = 4000
+"""A zoomed panel draws every sample up to this many; beyond (a fast scope: 56 bits of track 2 at
+5 MHz are about 300,000 samples) it draws the min/max envelope in :data:`ZOOM_BINS` columns,
+which looks the same at the panel's size (about 600 pixel columns)."""
+ZOOM_BINS = 1200
 
 _MARGIN_LIMIT = next(lim.limit for lim in LIMITS if lim.name == "margin_min")
 
@@ -217,8 +223,14 @@ def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, spans: np
     t1 = float(bs.start_s[stop]) if stop < n else float(bs.start_s[-1] + bs.period_s[-1])
     a, b = _span(ch, t0, t1)
     y = ch.wideband[a:b]
-    tt = np.arange(a, b) / fe.rate_hz
-    ax.plot(tt, np.where(_inside(tt, spans), np.nan, y), color="0.3", lw=0.8)
+    if y.size <= ZOOM_MAX_POINTS:
+        tt = np.arange(a, b) / fe.rate_hz
+        ax.plot(tt, np.where(_inside(tt, spans), np.nan, y), color="0.3", lw=0.8)
+    else:
+        tt, lo, hi = _decimate(a / fe.rate_hz, fe.rate_hz, y, ZOOM_BINS)
+        hide = _inside(tt, spans)
+        ax.fill_between(tt, np.where(hide, np.nan, lo), np.where(hide, np.nan, hi), color="0.3", lw=0.8,
+                        step="mid")
     _shade_masked(ax, spans, label=True)
     tr = rd.transitions
     sel = (tr.times_s >= t0) & (tr.times_s <= t1) & ~_inside(tr.times_s, spans)
@@ -297,6 +309,7 @@ def _speed_amplitude(ax, ch: ChannelReport, r: ReadReport, spans: np.ndarray) ->
                 label="speed per bit")
         ax.plot(tm.bit_t_s, tm.speed_fit_cm_s, color="darkgreen", lw=1.8, label="speed (sliding fit)")
         ax.set_ylabel("speed (cm/s)", fontsize=8, color="darkgreen")
+        _speed_limits(ax, np.where(per_bit, np.nan, tm.speed_cm_s), tm.speed_fit_cm_s)
         title = (f"speed: mean {tm.mean_speed_cm_s:.1f} cm/s, {tm.min_speed_cm_s:.1f}–{tm.max_speed_cm_s:.1f}; "
                  f"acceleration mean {tm.mean_accel_m_s2:+.2f} m/s², max |a| {tm.max_abs_accel_m_s2:.2f} m/s²")
     else:
@@ -319,6 +332,24 @@ def _speed_amplitude(ax, ch: ChannelReport, r: ReadReport, spans: np.ndarray) ->
         title += f"; median |peak| {a.median_peak:.3g} {ch.front_end.units}"
     ax.set_title(title, fontsize=9, loc="left")
     ax.legend(loc="lower left", fontsize=7)
+
+
+SPEED_MIN_SPAN = 0.05
+"""The speed axis spans at least ±5 % of the mean speed: a steady swipe is drawn flat, not at the
+scale of its measurement scatter under an offset label."""
+
+
+def _speed_limits(ax, per_bit: np.ndarray, fit: np.ndarray) -> None:
+    v = np.concatenate((np.asarray(per_bit, float), np.asarray(fit, float)))
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return
+    top, bottom = float(v.max()), float(v.min())
+    mid = 0.5 * (top + bottom)
+    half = max(0.5 * (top - bottom) * 1.15, SPEED_MIN_SPAN * abs(mid))
+    if half > 0:
+        ax.set_ylim(mid - half, mid + half)
+    ax.ticklabel_format(axis="y", useOffset=False)
 
 
 def _plot_empty(sf, ch: ChannelReport) -> int:
