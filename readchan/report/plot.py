@@ -223,14 +223,7 @@ def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, spans: np
     t1 = float(bs.start_s[stop]) if stop < n else float(bs.start_s[-1] + bs.period_s[-1])
     a, b = _span(ch, t0, t1)
     y = ch.wideband[a:b]
-    if y.size <= ZOOM_MAX_POINTS:
-        tt = np.arange(a, b) / fe.rate_hz
-        ax.plot(tt, np.where(_inside(tt, spans), np.nan, y), color="0.3", lw=0.8)
-    else:
-        tt, lo, hi = _decimate(a / fe.rate_hz, fe.rate_hz, y, ZOOM_BINS)
-        hide = _inside(tt, spans)
-        ax.fill_between(tt, np.where(hide, np.nan, lo), np.where(hide, np.nan, hi), color="0.3", lw=0.8,
-                        step="mid")
+    _zoom_trace(ax, a, fe.rate_hz, y, spans)
     _shade_masked(ax, spans, label=True)
     tr = rd.transitions
     sel = (tr.times_s >= t0) & (tr.times_s <= t1) & ~_inside(tr.times_s, spans)
@@ -270,6 +263,18 @@ def _zoom(ax, ch: ChannelReport, r: ReadReport, start: int, text: str, spans: np
     ax.set_title(f"bits {start}–{stop - 1} {where}", fontsize=9, loc="left")
     ax.set_xlabel("time (s)", fontsize=8)
     ax.tick_params(labelsize=7)
+
+
+def _zoom_trace(ax, a: int, rate_hz: float, y: np.ndarray, spans: np.ndarray) -> None:
+    """The samples ``y`` (from sample ``a``) of a zoomed panel, every one up to
+    :data:`ZOOM_MAX_POINTS`, else their min/max envelope; nothing inside the masked ``spans``."""
+    if y.size <= ZOOM_MAX_POINTS:
+        tt = (a + np.arange(y.size)) / rate_hz
+        ax.plot(tt, np.where(_inside(tt, spans), np.nan, y), color="0.3", lw=0.8)
+        return
+    tt, lo, hi = _decimate(a / rate_hz, rate_hz, y, ZOOM_BINS)
+    hide = _inside(tt, spans)
+    ax.fill_between(tt, np.where(hide, np.nan, lo), np.where(hide, np.nan, hi), color="0.3", lw=0.8, step="mid")
 
 
 def _intervals(ax, r: ReadReport, spans: np.ndarray) -> None:
