@@ -147,3 +147,22 @@ def test_inspect_draws_its_bar_on_stderr_only_and_quiet_turns_it_off(long_captur
     buf.seek(0)
     run_cli(monkeypatch, capsys, "inspect", long_capture, "--read", "2", "--json", "--quiet")
     assert buf.getvalue() == ""
+
+
+def test_the_bar_is_down_while_text_goes_to_a_terminal_stdout_and_back_after():
+    console, _ = _terminal()
+    with ProgressBar(3, console, delay_s=0, pause=True) as bar:
+        with bar.paused():
+            assert not bar._bar.live.is_started           # nothing live while the text is written
+        assert bar._bar.live.is_started                   # and up again after, the work not done
+        bar.done(3)
+        with bar.paused():
+            pass
+        assert not bar._bar.live.is_started               # all done: not put back
+
+
+def test_the_bar_stays_up_when_stdout_is_not_a_terminal():
+    console, _ = _terminal()
+    with ProgressBar(3, console, delay_s=0, pause=False) as bar:
+        with bar.paused():
+            assert bar._bar.live.is_started

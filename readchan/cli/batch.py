@@ -198,7 +198,7 @@ def run_batch(sources: list, opts: BatchOptions, ro: RenderOptions, *, jobs: int
 
         _preload()
         pool = ProcessPoolExecutor(max_workers=jobs)
-    bar = ProgressBar(len(sources), err, description="decoding", quiet=quiet)
+    bar = ProgressBar(len(sources), err, description="decoding", quiet=quiet, pause=out.is_terminal)
     try:
         with bar:
             if pool is None:

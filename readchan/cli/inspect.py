@@ -68,7 +68,7 @@ def inspect(
     targets = _plot_targets(plot, captures, force) if plot is not None else [None] * len(captures)
     doc = {"schema": schema("inspect"), "channels": [], "reads": []}
     all_reads, all_results = [], []
-    with ProgressBar(len(captures), err, description="inspecting", quiet=quiet) as bar:
+    with ProgressBar(len(captures), err, description="inspecting", quiet=quiet, pause=out.is_terminal) as bar:
         for i, (path, target) in enumerate(zip(captures, targets)):
             part = bar.part(i)
             cards, tapes, results, units, stretch = _inspect_one(path, rate, settings, channel, window, read, part)

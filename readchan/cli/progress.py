@@ -27,7 +27,8 @@ DELAY_S = 1.0
 
 class ProgressBar:
     """A bar over ``total`` items of work, drawn on ``console`` (a stderr console) once
-    ``delay_s`` (default :data:`DELAY_S`) has passed.
+    ``delay_s`` (default :data:`DELAY_S`) has passed.  ``pause``: :meth:`paused` takes the bar
+    down (give ``False`` when stdout is not a terminal).
 
     ``quiet`` or a console that is not a terminal: nothing is ever drawn, every call is cheap.
     The value shown never decreases: it is the items done plus the fraction of the one under
@@ -35,7 +36,7 @@ class ProgressBar:
     """
 
     def __init__(self, total: int, console: Console, *, description: str = "decoding", quiet: bool = False,
-                 delay_s: float | None = None) -> None:
+                 delay_s: float | None = None, pause: bool = True) -> None:
         self.total = max(1, int(total))
         self.enabled = not quiet and console.is_terminal
         self.value = 0.0
@@ -44,6 +45,7 @@ class ProgressBar:
         self._closed = False
         self._timer: threading.Timer | None = None
         self._bar: Progress | None = None
+        self._pause = pause
         if not self.enabled:
             return
         # redirect_stdout off: rich would otherwise send what is printed on stdout to this
@@ -109,8 +111,10 @@ class ProgressBar:
 
     @contextmanager
     def paused(self) -> Iterator[None]:
-        """The bar taken down while the block runs (text written on stdout), then put back."""
-        if not self.enabled:
+        """The bar taken down while the block runs (text written on stdout), then put back
+        unless the work is all done; a bar made with ``pause=False`` (stdout is not a terminal,
+        so the two cannot mix) stays up."""
+        if not self.enabled or not self._pause:
             yield
             return
         with self._lock:
@@ -121,6 +125,6 @@ class ProgressBar:
             try:
                 yield
             finally:
-                if was and not self._closed:
+                if was and not self._closed and self.value < self.total:
                     self._bar.start()
                     self._shown = True
