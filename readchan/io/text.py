@@ -1,7 +1,8 @@
 """Captures held in text tables (CSV, TSV, whitespace-separated), as instruments write them.
 
 Input: the path of a text table, its first bytes, and optionally the sample rate in Hz and
-whether the first column is time.  Output: the value columns as float64
+whether the first column is time (the rows themselves are parsed by :mod:`readchan.io.text_rows`,
+chunk by chunk).  Output: the value columns as float64
 ``(n_samples, n_channels)``, the sample rate in Hz (given, or fitted to the time column),
 the unit and the channel names from the header (see :mod:`readchan.io.capture` for the rules).
 """
@@ -10,20 +11,18 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterator, Sequence
+from typing import Sequence
 
 import numpy as np
 
-from readchan.errors import CaptureError
-from readchan.io.checks import (MIN_SAMPLES, check_file_rate, default_names, file_error, rates_disagree,
-                                show_excerpt)
+from readchan.io.checks import MIN_SAMPLES, check_file_rate, default_names, file_error, rates_disagree
+from readchan.io.text_rows import _Layout, _line_of_row, _read_table, _split, _Table, is_comment
+
+__all__ = ["SNIFF_BYTES", "TEXT_SUFFIXES", "is_comment", "is_numeric", "load_text", "text_encoding"]
 
 
 TEXT_SUFFIXES = {".csv", ".txt", ".tsv", ".dat", ".asc"}
-
-_COMMENT_PREFIXES = ("#", ";", "%", "//")
 
 SNIFF_BYTES = 1 << 16
 """Leading bytes read to tell audio from text and guess the encoding (our choice)."""
@@ -64,20 +63,11 @@ def text_encoding(head: bytes) -> str | None:
         return "latin-1"
 
 
-def is_comment(stripped: str) -> bool:
-    return stripped.startswith(_COMMENT_PREFIXES)
-
-
 def _detect_delimiter(line: str) -> str | None:
     for delim in (";", ",", "\t"):
         if delim in line:
             return delim
     return None
-
-
-def _split(line: str, delim: str | None) -> list[str]:
-    fields = [f.strip().strip('"').strip("'").strip() for f in line.strip().split(delim)]
-    return fields
 
 
 def _strip_trailing_empty(fields: list[str]) -> tuple[list[str], int]:
@@ -132,17 +122,6 @@ def _merge_unit_tokens(fields: list[str]) -> list[str]:
     return out
 
 
-@dataclass(frozen=True)
-class _Layout:
-    encoding: str
-    skip_lines: int            # physical lines before the first data row
-    first_data_line: int       # 1-based line number of the first data row
-    delimiter: str | None
-    n_fields: int              # real (non-empty) fields per row
-    n_trailing: int            # empty trailing fields per row
-    header: tuple[str, ...] | None
-
-
 def _scan_layout(p: Path, source: str, encoding: str) -> _Layout:
     """Read the leading comment/header lines and the first data row."""
     candidates: list[str] = []
@@ -168,92 +147,6 @@ def _scan_layout(p: Path, source: str, encoding: str) -> _Layout:
     raise file_error(source, "no numeric data found (not a capture table)")
 
 
-def _iter_data_lines(p: Path, layout: _Layout) -> Iterator[tuple[int, str]]:
-    """Yield (line number, content) for every data row, comments and blank lines left out."""
-    with open(p, encoding=layout.encoding, newline=None, errors="replace") as fh:
-        for lineno, raw in enumerate(fh, start=1):
-            if lineno <= layout.skip_lines:
-                continue
-            stripped = raw.strip()
-            if not stripped or is_comment(stripped):
-                continue
-            stripped = stripped.split("#", 1)[0].strip()
-            if stripped:
-                yield lineno, stripped
-
-
-def _diagnose(p: Path, source: str, layout: _Layout) -> CaptureError:
-    """Find the first ill-formed row of a table that numpy refused, and describe it."""
-    expected = layout.n_fields + layout.n_trailing
-    for lineno, line in _iter_data_lines(p, layout):
-        fields = _split(line, layout.delimiter)
-        if len(fields) != expected:
-            return file_error(source, f"line {lineno} has {len(fields)} fields, expected {expected} "
-                                      f"like line {layout.first_data_line}")
-        for col, text in enumerate(fields[:layout.n_fields], start=1):
-            if text == "":
-                return file_error(source, f"line {lineno} has an empty value in column {col}")
-            try:
-                value = float(text)
-            except ValueError:
-                return file_error(source, f"line {lineno}, column {col}: {show_excerpt(text)} is not a number")
-            if not math.isfinite(value):
-                return file_error(source, f"line {lineno}, column {col}: value {show_excerpt(text)} is not finite")
-        if any(f != "" for f in fields[layout.n_fields:]):
-            return file_error(source, f"line {lineno} has more values than line {layout.first_data_line}")
-    return file_error(source, "table could not be parsed as numbers")
-
-
-def _line_of_row(p: Path, layout: _Layout, row: int) -> int:
-    for k, (lineno, _) in enumerate(_iter_data_lines(p, layout)):
-        if k == row:
-            return lineno
-    return -1
-
-
-def _read_table(p: Path, source: str, layout: _Layout) -> np.ndarray:
-    """Parse the data rows with numpy (vectorised); describe the first bad row on failure."""
-    converters = None
-    if layout.n_trailing:
-        # Trailing delimiters: the extra fields must be empty; anything else marks the row.
-        def empty_field(text: str) -> float:
-            return 0.0 if not text.strip() else math.nan
-        converters = {layout.n_fields + j: empty_field for j in range(layout.n_trailing)}
-    common = dict(delimiter=layout.delimiter, skiprows=layout.skip_lines, ndmin=2,
-                  dtype=np.float64, converters=converters)
-    attempts = (
-        dict(comments="#", quotechar='"'),
-        dict(comments=["#", "//", "%"] + ([";"] if layout.delimiter != ";" else []), quotechar=None),
-    )
-    data = None
-    encoding = layout.encoding
-    for attempt in attempts:
-        for enc in (encoding, "latin-1"):
-            try:
-                data = np.loadtxt(p, encoding=enc, **common, **attempt)
-                break
-            except UnicodeError:
-                if enc == "latin-1":
-                    raise file_error(source, "cannot decode the text") from None
-                encoding = "latin-1"
-                continue
-            except (ValueError, IndexError):
-                break
-            except OSError as exc:
-                raise file_error(source, f"cannot read file ({exc.strerror or exc})") from None
-        if data is not None:
-            break
-    layout = _Layout(encoding, layout.skip_lines, layout.first_data_line, layout.delimiter,
-                     layout.n_fields, layout.n_trailing, layout.header)
-    if data is None:
-        raise _diagnose(p, source, layout)
-    if data.shape[1] != layout.n_fields + layout.n_trailing:
-        raise _diagnose(p, source, layout)
-    if not np.isfinite(data).all():
-        raise _diagnose(p, source, layout)
-    return np.ascontiguousarray(data[:, :layout.n_fields])
-
-
 def load_text(p: Path, source: str, head: bytes, rate_hz: float | None,
               time_column: bool | None) -> tuple[np.ndarray, float, str, tuple[str, ...]]:
     """The table ``p``: its value columns (float64, ``(n_samples, n_channels)``), the sample rate
@@ -265,28 +158,31 @@ def load_text(p: Path, source: str, head: bytes, rate_hz: float | None,
     if scale is None and time_column:
         scale = 1.0
 
-    data = _read_table(p, source, layout)
-    n_rows = data.shape[0]
+    # column 0 is kept apart when it is, or may turn out to be, time
+    split = scale is not None or (layout.header is None and time_column is None and rate_hz is None
+                                  and layout.n_fields >= 2)
+    data = _read_table(p, source, layout, split)
+    n_rows = data.n_rows
     if n_rows < MIN_SAMPLES:
         raise file_error(source, f"holds {n_rows} samples; at least {MIN_SAMPLES} are needed")
 
     if (layout.header is None and time_column is None and rate_hz is None
-            and data.shape[1] >= 2 and bool(np.all(np.diff(data[:, 0]) > 0))):
+            and layout.n_fields >= 2 and bool(np.all(data.first[1:] > data.first[:-1]))):
         scale = 1.0
 
     if scale is not None:
         rate = _rate_from_time(p, source, layout, data, scale, rate_hz)
-        values = np.ascontiguousarray(data[:, 1:])
+        values = data.rest
         value_names, value_units = names[1:], units[1:]
     else:
         if rate_hz is None:
-            if data.shape[1] == 1:
+            if layout.n_fields == 1:
                 raise file_error(source, "has a single column and no time column; pass rate_hz to give the "
                                          "sample rate")
             raise file_error(source, "has no time column (the first column is not named time and is not "
                                      "increasing); pass rate_hz to give the sample rate")
         rate = rate_hz
-        values = data
+        values = data.rest if data.first is None else np.column_stack((data.first, data.rest))
         value_names, value_units = names, units
 
     channel_names = tuple(n or f"ch{i}" for i, n in enumerate(value_names)) or default_names(values.shape[1])
@@ -333,13 +229,15 @@ def _header_time_scale(source: str, names: list[str], units: list[str | None],
     return None
 
 
-def _rate_from_time(p: Path, source: str, layout: _Layout, data: np.ndarray, scale: float,
+def _rate_from_time(p: Path, source: str, layout: _Layout, data: _Table, scale: float,
                     rate_hz: float | None) -> float:
     """The sample rate in Hz of a table whose first column is time (``scale`` seconds per unit):
-    fitted to it, checked against ``rate_hz`` when given (``rate_hz`` is then used)."""
-    if data.shape[1] < 2:
+    fitted to it, checked against ``rate_hz`` when given (``rate_hz`` is then used).  The time
+    column is scaled in place."""
+    if layout.n_fields < 2:
         raise file_error(source, "has a time column but no value columns")
-    times = data[:, 0] * (scale or 1.0)
+    times = data.first
+    times *= (scale or 1.0)
     fitted = _fit_rate(p, source, layout, times)
     if rate_hz is None:
         check_file_rate(source, fitted, f"time column (step {1.0 / fitted:.3g} s) gives")
@@ -365,27 +263,34 @@ def _table_units(names: Sequence[str], units: Sequence[str | None]) -> str:
 
 
 def _fit_rate(p: Path, source: str, layout: _Layout, times: np.ndarray) -> float:
-    """Fit t = t0 + i*dt by least squares; require every residual within half a period."""
+    """Fit t = t0 + i*dt by least squares; require every residual within half a period.  Two
+    full-length work arrays besides ``times`` (the same arithmetic, element by element, as
+    temporaries would give)."""
     n = times.shape[0]
-    i = np.arange(n, dtype=np.float64)
+    di = np.arange(n, dtype=np.float64)
     i_mean = (n - 1) / 2.0
     t_mean = float(times.mean())
-    di = i - i_mean
-    dt = float(np.dot(di, times - t_mean) / np.dot(di, di))
+    di -= i_mean
+    work = np.subtract(times, t_mean)
+    dt = float(np.dot(di, work) / np.dot(di, di))
     if not math.isfinite(dt) or dt <= 0.0:
         raise file_error(source, "time column is not increasing")
-    residual = times - (t_mean + di * dt)
-    worst = int(np.argmax(np.abs(residual)))
-    if abs(residual[worst]) > _UNIFORM_TOLERANCE * dt:
+    residual = np.multiply(di, dt, out=work)
+    residual += t_mean
+    np.subtract(times, residual, out=residual)
+    del di
+    worst = int(np.argmax(np.abs(residual, out=residual)))
+    if residual[worst] > _UNIFORM_TOLERANCE * dt:
         line = _line_of_row(p, layout, worst)
         raise file_error(source, f"time column is not uniformly sampled (largest deviation "
-                                 f"{abs(residual[worst]):.3g} s at row {worst + 1}, line {line})")
+                                 f"{residual[worst]:.3g} s at row {worst + 1}, line {line})")
     # A single dropped or doubled row can hide inside the residual bound; steps catch it.
-    steps = np.diff(times)
-    step_error = np.abs(steps - dt)
-    worst = int(np.argmax(step_error))
+    step_error = np.subtract(times[1:], times[:-1], out=work[:n - 1])
+    step_error -= dt
+    worst = int(np.argmax(np.abs(step_error, out=step_error)))
     if step_error[worst] > _UNIFORM_TOLERANCE * dt:
         line = _line_of_row(p, layout, worst + 1)
-        raise file_error(source, f"time column is not uniformly sampled (step of {steps[worst]:.3g} s at row "
+        step = float(times[worst + 1] - times[worst])
+        raise file_error(source, f"time column is not uniformly sampled (step of {step:.3g} s at row "
                                  f"{worst + 2}, line {line}, where the sample period is {dt:.3g} s)")
     return 1.0 / dt
