@@ -30,6 +30,8 @@ ROOT = Path(__file__).resolve().parents[1]
 
 CHILD = r"""
 import hashlib, resource, sys, time
+import readchan
+assert readchan.__file__.startswith(sys.argv[3]), (readchan.__file__, sys.argv[3])
 import numpy as np
 from readchan.io.capture import load_capture
 if sys.argv[2] == "load":
@@ -60,8 +62,9 @@ def build(path: Path, rows: int, channels: int) -> None:
 def run(tree: Path, path: Path, what: str) -> tuple[float, int, str]:
     env = dict(os.environ, PYTHONPATH=str(tree))
     env.setdefault("OMP_NUM_THREADS", "1")
-    out = subprocess.run([sys.executable, "-c", CHILD, str(path), what], env=env, capture_output=True, text=True,
-                         check=True).stdout.split()
+    # run in the tree: ``python -c`` puts the working directory first on sys.path
+    out = subprocess.run([sys.executable, "-c", CHILD, str(path), what, str(tree)], env=env, cwd=tree, capture_output=True,
+                         text=True, check=True).stdout.split()
     return float(out[0]), int(out[1]), out[2]
 
 
