@@ -181,7 +181,7 @@ def _reads(path: Path, cap, info, a_s: float, b_s: float, rate_hz: float, settin
     from readchan.channel import decode_capture
 
     if info is not None and a_s == 0.0 and b_s >= info.frames / info.rate_hz \
-            and info.frames / info.rate_hz > WHOLE_LIMIT_S:
+            and info.frames / info.rate_hz > WHOLE_LIMIT_S and _streamable(path, info):
         from readchan.stream import decode_file
 
         return decode_file(path, settings, channels, progress=lambda f: progress(0.5 * f))
@@ -190,6 +190,17 @@ def _reads(path: Path, cap, info, a_s: float, b_s: float, rate_hz: float, settin
              for res in decode_capture(part, settings, channels) for r in res.reads]
     progress(0.5)
     return sorted(reads, key=lambda r: (r.channel, r.start_s))
+
+
+def _streamable(path: Path, info) -> bool:
+    """Uncompressed audio whose header the file's size bears out, as ``decode`` streams it
+    (:data:`readchan.batch.STREAM_SUBTYPE_BYTES`); others are decoded whole, as there."""
+    import os
+
+    from readchan.batch import STREAM_SUBTYPE_BYTES
+
+    width = STREAM_SUBTYPE_BYTES.get(info.subtype)
+    return width is not None and info.frames * info.channels * width <= os.path.getsize(path)
 
 
 @dataclass(frozen=True)
