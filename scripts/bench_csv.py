@@ -6,7 +6,8 @@ The CSV (invented data): a time column and ``--channels`` value columns of Gauss
 
 For each checkout (``--tree``, default this one and /work/main) the script prints, over
 ``--repeat`` fresh processes (medians): wall time of the load, peak RSS of the process
-(``ru_maxrss`` of a child that does nothing else), the RSS of
+(``ru_maxrss`` of a child that does nothing else; the CSV is built in a child of its own, since a
+child's peak RSS starts from its parent's), the RSS of
 the same child with its imports done and no load (so the load's own share is the difference),
 and a digest of the samples, rate, units and channel names, which must agree between the trees.
 
@@ -38,23 +39,25 @@ if sys.argv[2] == "load":
     t0 = time.perf_counter()
     cap = load_capture(sys.argv[1])
     dt = time.perf_counter() - t0
-    h = hashlib.sha256(np.ascontiguousarray(cap.samples).tobytes())
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss      # before the digest, which copies nothing
+    h = hashlib.sha256(memoryview(np.ascontiguousarray(cap.samples)).cast("B"))
     h.update(repr((cap.rate_hz, cap.units, cap.channel_names)).encode())
-    print(dt, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, h.hexdigest()[:16])
+    print(dt, peak, h.hexdigest()[:16])
 else:
     print(0.0, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, "-")
 """
 
 
 def build(path: Path, rows: int, channels: int) -> None:
-    """Write the CSV in blocks (so that building it costs little memory)."""
+    """Write the CSV in blocks of rows."""
     import numpy as np
 
     rng = np.random.default_rng(7)
     with open(path, "w") as fh:
         fh.write("Time (s)," + ",".join(f"CH{c + 1} (V)" for c in range(channels)) + "\n")
-        for a in range(0, rows, 500_000):
-            n = min(500_000, rows - a)
+        step = max(1, 2_000_000 // (channels + 1))
+        for a in range(0, rows, step):
+            n = min(step, rows - a)
             block = np.column_stack([(a + np.arange(n)) / 1e6, rng.normal(0.0, 0.1, (n, channels))])
             np.savetxt(fh, block, fmt="%.7e", delimiter=",")
 
@@ -74,12 +77,18 @@ def main() -> None:
     ap.add_argument("--channels", type=int, default=2)
     ap.add_argument("--repeat", type=int, default=5)
     ap.add_argument("--tree", action="append", type=Path, help="a readchan checkout (repeatable)")
+    ap.add_argument("--build", type=Path, help=argparse.SUPPRESS)
     args = ap.parse_args()
+    if args.build is not None:
+        build(args.build, args.rows, args.channels)
+        return
     trees = args.tree or [ROOT, Path("/work/main")]
     print("load average before:", Path("/proc/loadavg").read_text().strip())
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "scope.csv"
-        build(path, args.rows, args.channels)
+        # built in a child: a child's peak RSS starts from its parent's, which must stay small
+        subprocess.run([sys.executable, __file__, "--build", str(path), "--rows", str(args.rows), "--channels",
+                        str(args.channels)], check=True)
         mb = path.stat().st_size / 1e6
         arr_mb = args.rows * args.channels * 8 / 1e6
         print(f"{path.name}: {args.rows} rows, {args.channels} value columns, {mb:.0f} MB of text; "

@@ -29,12 +29,12 @@ def _table(path, newline="\n", comment_every=None, header="Time (s),CH1 (V),CH2 
     return path
 
 
-@pytest.mark.parametrize("chunk", [1, 7, 64, 10_000])
+@pytest.mark.parametrize("chunk", [1, 50, 1000, 1 << 22])
 @pytest.mark.parametrize("newline", ["\n", "\r\n", "\r"])
 def test_chunked_samples_are_numpy_s_whole_file_parse_bit_for_bit(tmp_path, monkeypatch, chunk, newline):
     path = _table(tmp_path / "scope.csv", newline)
     want = np.loadtxt(path, delimiter=",", skiprows=1)
-    monkeypatch.setattr(text_rows, "CHUNK_ROWS", chunk)
+    monkeypatch.setattr(text_rows, "CHUNK_CHARS", chunk)
     cap = load_capture(path)
     assert cap.samples.shape == (ROWS, 2)
     assert np.array_equal(cap.samples, want[:, 1:]) and cap.channel_names == ("CH1", "CH2")
@@ -43,7 +43,7 @@ def test_chunked_samples_are_numpy_s_whole_file_parse_bit_for_bit(tmp_path, monk
 def test_comment_lines_between_chunks_are_skipped_without_a_warning(tmp_path, monkeypatch):
     path = _table(tmp_path / "marked.csv", comment_every=5)
     want = np.loadtxt(path, delimiter=",", skiprows=1, comments="#")
-    monkeypatch.setattr(text_rows, "CHUNK_ROWS", 3)       # some chunks hold only a comment
+    monkeypatch.setattr(text_rows, "CHUNK_CHARS", 9)       # some chunks hold only a comment
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         cap = load_capture(path)
@@ -54,7 +54,7 @@ def test_the_rate_is_the_least_squares_slope_of_the_time_column(tmp_path, monkey
     path = _table(tmp_path / "scope.csv")
     t = np.loadtxt(path, delimiter=",", skiprows=1)[:, 0]
     slope = np.polyfit(np.arange(t.size), t, 1)[0]
-    monkeypatch.setattr(text_rows, "CHUNK_ROWS", 7)
+    monkeypatch.setattr(text_rows, "CHUNK_CHARS", 7)
     assert load_capture(path).rate_hz == pytest.approx(1.0 / slope, rel=1e-12)
 
 
@@ -68,7 +68,7 @@ def test_a_bad_row_in_a_later_chunk_is_named_by_its_line(tmp_path, monkeypatch, 
     lines = path.read_text().splitlines()
     lines[701] = bad                                      # line 702 of the file
     path.write_text("\n".join(lines) + "\n")
-    monkeypatch.setattr(text_rows, "CHUNK_ROWS", 64)
+    monkeypatch.setattr(text_rows, "CHUNK_CHARS", 3000)
     with pytest.raises(CaptureError, match=needle):
         load_capture(path)
 
@@ -77,6 +77,6 @@ def test_a_table_with_more_rows_than_lines_counted_still_loads(tmp_path, monkeyp
     # the capacity is only a first guess: an undercount grows the arrays
     path = _table(tmp_path / "scope.csv")
     monkeypatch.setattr(text_rows, "_count_lines", lambda p: 10)
-    monkeypatch.setattr(text_rows, "CHUNK_ROWS", 100)
+    monkeypatch.setattr(text_rows, "CHUNK_CHARS", 5000)
     want = np.loadtxt(path, delimiter=",", skiprows=1)
     assert np.array_equal(load_capture(path).samples, want[:, 1:])
