@@ -43,6 +43,8 @@ class BatchOptions:
         comparator output.
     signal_name, strobe_name, data_name, strobe_edge : the VCD signals to read
         (:func:`readchan.io.vcd.load_vcd`).
+    jobs : processes the stretches of a long streamed capture are decoded in
+        (:func:`readchan.stream.decode_file`; the same reads as one process).
     """
 
     settings: Any = None
@@ -52,6 +54,7 @@ class BatchOptions:
     strobe_name: str | None = None
     data_name: str | None = None
     strobe_edge: str = "falling"
+    jobs: int = 1
 
 
 @dataclass(frozen=True)
@@ -107,7 +110,7 @@ def _load(path: str, opts: BatchOptions, source: str, progress=None):
         return [decode_strobe(got, settings)], got.duration_s, 1.0 / got.timescale_s, got.timescale_s
     from readchan.io.capture import load_capture
 
-    streamed = _streamed(path, settings, chans, source, progress)
+    streamed = _streamed(path, settings, chans, source, progress, opts.jobs)
     if streamed is not None:
         return streamed
     cap = load_capture(path, rate_hz=opts.rate_hz)
@@ -121,7 +124,7 @@ STREAM_SUBTYPE_BYTES = {"PCM_U8": 1, "PCM_S8": 1, "PCM_16": 2, "PCM_24": 3, "PCM
 header's length can be checked against the file's size before it is trusted."""
 
 
-def _streamed(path: str, settings, chans, source: str, progress=None):
+def _streamed(path: str, settings, chans, source: str, progress=None, jobs: int = 1):
     """(channel results, duration_s, rate_hz, None) of an audio capture longer than
     :data:`readchan.stream.WHOLE_S`, decoded span by span from the file (:mod:`readchan.stream`),
     so memory does not grow with its length; None for a shorter capture or one that is not audio.
@@ -142,7 +145,7 @@ def _streamed(path: str, settings, chans, source: str, progress=None):
     if width is None or info.frames * info.channels * width > os.path.getsize(path):
         return None     # compressed, or a header claiming more than the file holds: the loader salvages it whole
     reads = [replace(r, source=source) for r in decode_file(path, settings, chans, whole_s=WHOLE_S,
-                                                                  progress=progress)]
+                                                                  progress=progress, jobs=jobs)]
     out = [streamed_channel_result(c, info.rate_hz, tuple(r for r in reads if r.channel == c))
            for c in (range(info.channels) if chans is None else chans)]
     return out, info.frames / info.rate_hz, info.rate_hz, None

@@ -47,3 +47,25 @@ def test_a_long_capture_without_a_swipe_gives_no_data(tmp_path, monkeypatch, cap
     monkeypatch.setattr("readchan.stream.WHOLE_S", 5.0)
     code, out, _ = run_cli(monkeypatch, capsys, "decode", path, "--json")
     assert code == 3 and json.loads(out)["reads"] == []
+
+
+def test_jobs_on_one_long_capture_spread_its_stretches_with_the_same_output(tmp_path, monkeypatch, capsys):
+    path = tmp_path / "rig-shift.wav"
+    _capture(path)
+    monkeypatch.setattr("readchan.stream.WHOLE_S", 5.0)
+    seen = []
+    import readchan.stream as stream
+
+    real = stream.decode_file
+
+    def spy(*a, **kw):
+        seen.append(kw.get("jobs"))
+        return real(*a, **kw)
+
+    monkeypatch.setattr(stream, "decode_file", spy)
+    outs = []
+    for jobs in ("1", "2"):
+        code, out, _ = run_cli(monkeypatch, capsys, "decode", path, "--json", "--jobs", jobs)
+        outs.append((code, json.loads(out)["reads"]))
+    assert seen == [1, 2]
+    assert outs[0] == outs[1] and outs[0][0] == 0 and len(outs[0][1]) == 6

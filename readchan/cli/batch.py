@@ -19,7 +19,7 @@ import json
 import sys
 import time
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from readchan.batch import BatchOptions, CaptureResult, batch_exit_code, decode_source, in_order
 from readchan.cli.common import err, out, schema
@@ -193,6 +193,8 @@ def run_batch(sources: list, opts: BatchOptions, ro: RenderOptions, *, jobs: int
     start = time.perf_counter()
     totals = Totals()
     pool = None
+    if jobs > 1 and len(sources) == 1:     # one capture: its stretches, when it is streamed, share the processes
+        opts = replace(opts, jobs=jobs)
     if jobs > 1 and len(sources) > 1:
         from concurrent.futures import ProcessPoolExecutor
 

@@ -50,7 +50,8 @@ def decode(
     jsonl: bool = typer.Option(False, "--jsonl", help="Print one JSON object per capture, one a line, each as soon as "
                                                       "it is done."),
     jobs: int = typer.Option(1, "--jobs", "-j", min=1, max=256, help="Decode the captures in N processes (output "
-                                                                     "stays in input order)."),
+                                                                     "stays in input order); one long capture: its "
+                                                                     "stretches (the same reads)."),
     unmask: bool = UNMASK,
     field_check: bool = FIELD_CHECK,
     kind_old: Optional[Kind] = SIGNAL_OLD,
