@@ -46,19 +46,19 @@ def _inspected(monkeypatch, capsys, *args) -> tuple[int, dict, str]:
     return code, (json.loads(out) if out.strip() else {}), err
 
 
-@pytest.mark.parametrize("n", [1, 2, 3])
+@pytest.mark.parametrize("n", [0, 1, 2])
 def test_read_n_measures_the_n_th_read_in_decode_s_order(monkeypatch, capsys, n):
     decoded = _decoded(monkeypatch, capsys, THREE)
     code, doc, _ = _inspected(monkeypatch, capsys, THREE, "--read", str(n))
     assert code == EXIT_VALID and len(doc["reads"]) == 1
-    r, want = doc["reads"][0], decoded[n - 1]
+    r, want = doc["reads"][0], decoded[n]
     assert (r["channel"], r["text"]) == (want["channel"], want["text"])
     assert r["selected_read"] == n
 
 
 def test_read_n_on_a_capture_of_several_swipes_gives_that_swipe_in_capture_time(swipes, monkeypatch, capsys):
     decoded = _decoded(monkeypatch, capsys, swipes)
-    code, doc, _ = _inspected(monkeypatch, capsys, swipes, "--read", "4")
+    code, doc, _ = _inspected(monkeypatch, capsys, swipes, "--read", "3")
     assert code == EXIT_VALID and len(doc["reads"]) == 1
     r = doc["reads"][0]
     assert abs(r["start_s"] + r["window_start_s"] - decoded[3]["start_s"]) < 1e-3
@@ -80,7 +80,7 @@ def test_a_window_measures_the_reads_inside_it_with_times_from_its_start(swipes,
 def test_read_n_counts_within_the_window_when_both_are_given(swipes, monkeypatch, capsys):
     decoded = _decoded(monkeypatch, capsys, swipes)
     a = decoded[2]["start_s"] - 0.2
-    code, doc, _ = _inspected(monkeypatch, capsys, swipes, "--window", f"{a}:", "--read", "2")
+    code, doc, _ = _inspected(monkeypatch, capsys, swipes, "--window", f"{a}:", "--read", "1")
     assert code == EXIT_VALID and len(doc["reads"]) == 1
     assert abs(doc["reads"][0]["start_s"] + doc["reads"][0]["window_start_s"] - decoded[3]["start_s"]) < 1e-3
 
@@ -102,11 +102,11 @@ def test_the_whole_capture_has_a_window_from_zero_to_its_end(monkeypatch, capsys
     (["--window", "0.1:9"], "past the end"),
     (["--window", "0.1-0.2"], "START:END"),
     (["--window", "a:b"], "START:END"),
-    (["--read", "0"], "from 1"),
-    (["--read", "-2"], "from 1"),
-    (["--read", "4"], "holds 3 read(s)"),
+    (["--read", "-1"], "from 0"),
+    (["--read", "-2"], "from 0"),
+    (["--read", "3"], "holds 3 read(s)"),
     (["--read", "x"], "--read"),
-    (["--window", "0.2:", "--read", "1"], "holds 0 read(s)"),
+    (["--window", "0.2:", "--read", "0"], "holds 0 read(s)"),
 ])
 def test_a_bad_window_or_read_number_is_one_error_line_with_exit_code_2(monkeypatch, capsys, args, needle):
     code, out, err = run_cli(monkeypatch, capsys, "inspect", THREE, *args)
@@ -132,10 +132,10 @@ def test_read_n_on_a_long_capture_finds_its_reads_streamed(swipes, monkeypatch, 
     decoded = _decoded(monkeypatch, capsys, swipes)
     monkeypatch.setattr("readchan.cli.inspect_window.WHOLE_LIMIT_S", 5.0)
     monkeypatch.setattr("readchan.stream.WHOLE_S", 5.0)
-    code, doc, _ = _inspected(monkeypatch, capsys, swipes, "--read", "6")
+    code, doc, _ = _inspected(monkeypatch, capsys, swipes, "--read", "5")
     assert code == EXIT_VALID and len(doc["reads"]) == 1
     assert abs(doc["reads"][0]["start_s"] + doc["reads"][0]["window_start_s"] - decoded[5]["start_s"]) < 1e-3
-    code, _, err = run_cli(monkeypatch, capsys, "inspect", swipes, "--read", "7")
+    code, _, err = run_cli(monkeypatch, capsys, "inspect", swipes, "--read", "6")
     assert code == EXIT_BAD_INPUT and "holds 6 read(s)" in err
 
 

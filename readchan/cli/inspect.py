@@ -45,7 +45,7 @@ def inspect(
                                         "several captures, one file each, named FILE-<capture>.png."),
     force: bool = typer.Option(False, help="Overwrite the --plot file(s) if they exist (regular files only)."),
     read: Optional[int] = typer.Option(None, "--read", metavar="N",
-                                       help="Measure (and plot) only the N-th read, from 1, in decode's order "
+                                       help="Measure (and plot) only read N, numbered from 0 as decode numbers them "
                                             "(channel by channel, in time), with 0.5 s of capture either side."),
     window: Optional[str] = typer.Option(None, "--window", metavar="A:B",
                                          help="Measure only capture time A to B seconds (A: to the end, : all)."),

@@ -8,7 +8,7 @@ whose time 0 is the stretch's start), where it lies in the capture (s), and the 
 
 * ``--window A:B``: seconds of capture time, ``A:`` to the end, ``:B`` from the start, ``:`` the
   whole capture.  An audio file's stretch is read from the file alone (no whole-capture copy).
-* ``--read N``: the N-th read (from 1) in the order ``readchan decode`` lists them (channel by
+* ``--read N``: read N (numbered from 0, as ``readchan decode`` numbers them) in the order it lists them (channel by
   channel, in time order; within the window when one is given), measured with
   :data:`READ_CONTEXT_S` of capture on either side.  The reads of a long audio capture are found
   by :func:`readchan.stream.decode_file` (memory bounded), of others by a whole decode.
@@ -45,7 +45,7 @@ class Stretch:
     capture : the samples of the stretch (time 0 at ``start_s``).
     start_s, end_s : where the stretch lies in the capture, seconds.
     duration_s : the whole capture's length, seconds.
-    read : the ``--read`` number (from 1), or None.
+    read : the ``--read`` number (from 0, decode's numbering), or None.
     read_channel, read_start_s : the chosen read's channel and start (s, stretch time), or None.
     """
 
@@ -94,8 +94,8 @@ def parse_window(text: str | None) -> tuple[float, float | None] | None:
 
 
 def check_read_number(n: int | None) -> None:
-    if n is not None and n < 1:
-        raise ParameterError(f"--read counts reads from 1, was {n}")
+    if n is not None and n < 0:
+        raise ParameterError(f"--read numbers reads from 0 as decode does, was {n}")
 
 
 def _span(window, duration_s: float, source: str) -> tuple[float, float]:
@@ -135,11 +135,11 @@ def select(path: Path, rate_hz: float | None, settings, channels, window_text: s
     if read is None:
         return Stretch(_cut(path, cap, info, a, b, rate, rate_hz), a, b, duration_s)
     reads = _reads(path, cap, info, a, b, rate, settings, channels, progress)
-    if read > len(reads):
+    if read >= len(reads):
         where = "" if window is None else f" in --window {window_text}"
         raise ParameterError(f"--read {read}: {source} holds {len(reads)} read(s){where}"
-                             + (f" (N from 1 to {len(reads)})" if reads else ""))
-    chosen = reads[read - 1]
+                             + (f" (N from 0 to {len(reads) - 1})" if reads else ""))
+    chosen = reads[read]
     lo = max(a, chosen.start_s - READ_CONTEXT_S)
     hi = min(b, chosen.end_s + READ_CONTEXT_S)
     return Stretch(_cut(path, cap, info, lo, hi, rate), lo, hi, duration_s, read, chosen.channel,
