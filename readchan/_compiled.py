@@ -19,6 +19,11 @@ imported only when a kernel is first called, so importing readchan (and ``readch
 never loads it.  Compiled code does the same IEEE double operations in the same order as the
 Python (no ``fastmath``), so results are bit-identical.
 
+A kernel over *samples* (a whole-signal scan) has a numpy equivalent that runs at numpy's speed
+for short captures, so it is compiled later (``kernel(jit_after=SAMPLE_JIT_AFTER)``) and its
+caller asks :meth:`Kernel.ready` whether to call it or to take its numpy path; both give the
+same values (tests/test_compiled.py).
+
 ``READCHAN_NO_JIT=1`` in the environment runs the plain functions (for debugging, or where numba
 is not installed; without numba the plain functions run as well).
 """
@@ -35,13 +40,21 @@ about a quarter of a second of a per-element loop in Python, against about half 
 import numba and load (or, the first time, a few seconds to compile) the kernel."""
 
 
+SAMPLE_JIT_AFTER = 6_000_000
+"""Samples a sample-scanning kernel leaves to its numpy path before it is compiled: about two
+minutes of 48 kHz signal through the detector's two passes, where the numpy path's extra
+≈ 70 ns per sample (two detections; scripts/bench_channel.py) has cost about what importing
+numba and loading the cached kernel does (≈ 0.45 s)."""
+
+
 class Kernel:
     """A function compiled once enough work has gone through it; see the module docstring."""
 
-    def __init__(self, fn: Callable[..., Any]) -> None:
+    def __init__(self, fn: Callable[..., Any], jit_after: int | None = None) -> None:
         self.py_func = fn
         self._run: Callable[..., Any] | None = None
         self._work = 0
+        self._jit_after = jit_after
         self.__name__ = fn.__name__
         self.__doc__ = fn.__doc__
 
@@ -61,20 +74,38 @@ class Kernel:
         return numba.njit(cache=True, nogil=True)(self.py_func)
 
     @property
+    def jit_after(self) -> int:
+        """Elements of work run as plain Python (or left to the numpy path) before compiling."""
+        return JIT_AFTER if self._jit_after is None else self._jit_after
+
+    @property
     def compiled(self) -> bool:
         """The kernel runs numba-compiled code now."""
         return self._run is not None and self._run is not self.py_func
 
+    def ready(self, work: int) -> bool:
+        """Count ``work`` elements and say whether the compiled code runs them (compiling, or
+        loading from the cache, once :attr:`jit_after` is passed); False while the caller should
+        take its numpy path instead, and always False without numba or with ``READCHAN_NO_JIT=1``."""
+        if self._run is None:
+            self._work += int(work)
+            if self._work <= self.jit_after:
+                return False
+            self._run = self._compile()
+        return self.compiled
+
     def __call__(self, *args: Any) -> Any:
         if self._run is None:
             self._work += int(getattr(args[0], "size", 0)) if args else 0
-            if self._work <= JIT_AFTER:
+            if self._work <= self.jit_after:
                 return self.py_func(*args)
             self._run = self._compile()
         return self._run(*args)
 
 
-def kernel(fn: Callable[..., Any]) -> Kernel:
-    """Decorate a loop to be compiled with numba once it has done enough work (see the module
-    docstring)."""
-    return Kernel(fn)
+def kernel(fn: Callable[..., Any] | None = None, *, jit_after: int | None = None) -> Any:
+    """Decorate a loop to be compiled with numba once it has done ``jit_after`` elements of work
+    (default :data:`JIT_AFTER`; see the module docstring); ``@kernel`` or ``@kernel(jit_after=...)``."""
+    if fn is None:
+        return lambda f: Kernel(f, jit_after)
+    return Kernel(fn, jit_after)

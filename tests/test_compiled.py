@@ -121,3 +121,39 @@ def test_importing_the_decoder_does_not_load_numba():
 def test_decoding_a_short_capture_does_not_load_numba():
     assert not _loaded("from readchan.channel import decode_capture\nfrom readchan.io.capture import load_capture\n"
                        "decode_capture(load_capture('fixtures/three-track-swipe.wav'))")
+
+
+def _lobe_signal(seed: int, n: int = 6000) -> np.ndarray:
+    """Pulses of alternating sign with ringing and noise, quantised to 16-bit steps so that
+    plateaus (equal neighbouring samples) occur, some clipped flat."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(n)
+    x = np.zeros(n)
+    for k, c in enumerate(np.sort(rng.choice(np.arange(50, n - 50), 60, replace=False))):
+        x += (-1) ** k * rng.uniform(0.3, 1.0) / (1 + ((t - c) / rng.uniform(2, 8)) ** 2)
+    x += rng.normal(0, 0.02, n)
+    x = np.clip(np.round(x * 2 ** 7) / 2 ** 7, -0.8, 0.8)
+    return x
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_lobe_scan_compiled_equals_the_numpy_lobe_peaks(seed, monkeypatch):
+    from readchan.frontend import scan
+
+    x = _lobe_signal(seed)
+    for h, floor in ((0.02, 0.04), (0.05, 0.1), (0.0, 0.0)):
+        monkeypatch.setattr(scan.lobe_scan, "_run", None)
+        monkeypatch.setattr(scan.lobe_scan, "_work", -10 ** 12)        # numpy path
+        expected = detect._lobe_peaks(x, h, floor)
+        got = scan.lobe_scan.compile_now()._run(x, h, floor)
+        _same(got, expected)
+        _same(scan.lobe_scan.py_func(x, h, floor), expected)
+
+
+def test_a_sample_kernel_leaves_short_signals_to_the_numpy_path():
+    from readchan.frontend import scan
+
+    k = _compiled.kernel(_double, jit_after=1000)
+    assert not k.ready(600)
+    assert k.ready(600) and k.compiled
+    assert scan.lobe_scan.jit_after == _compiled.SAMPLE_JIT_AFTER

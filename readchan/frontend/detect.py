@@ -37,6 +37,7 @@ from scipy import signal as sps
 from scipy.ndimage import maximum_filter1d, median_filter, percentile_filter
 
 from readchan._compiled import kernel
+from readchan.frontend.scan import lobe_scan
 
 # Transition flags (``Transitions.flags``).  The line decoder's per-bit flags are ``BIT_*`` in
 # readchan.linecode.f2f: the two sets share values, so each has its own prefix and mask.
@@ -202,8 +203,12 @@ def _lobe_peaks(x: np.ndarray, h: float, floor: float) -> tuple[np.ndarray, np.n
 
     Peaks come from ``find_peaks`` on |x|.  Two neighbouring peaks of one sign lie in the same
     lobe when the signal between them never crosses the opposite hysteresis level, which the
-    minimum (or maximum) of each stretch between peaks tells (``np.minimum.reduceat``).
+    minimum (or maximum) of each stretch between peaks tells (``np.minimum.reduceat``).  Once
+    enough samples have gone this way, the compiled one-pass scan
+    (:func:`readchan.frontend.scan.lobe_scan`, the same values) runs instead.
     """
+    if lobe_scan.ready(x.size):
+        return lobe_scan(x, float(h), float(floor))
     a = np.abs(x)
     a[a <= floor] = 0.0                                    # zeroing below the floor: fewer maxima
     idx, _ = sps.find_peaks(a)
