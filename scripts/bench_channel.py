@@ -71,7 +71,7 @@ STAGES = (
     ("readchan.formats.iso7811.card", "_checked", "  _checked"),
     ("readchan.formats.iso7811.card", "damage_evidence", "    damage_evidence"),
     ("readchan.formats.iso7811.card", "assign_tracks", "assign_tracks"),
-    ("readchan.formats.iso7811.card", "condition", "  condition (wide)"),
+    ("readchan.formats.iso7811.card", "condition", "condition (card: front end + PW50)"),
     ("readchan.formats.iso7811.card", "clocking_pw50_cell", "  clocking_pw50_cell"),
     ("readchan.formats.iso7811.card", "check_fields", "check_fields"),
     ("readchan.measure.status", "channel_status", "channel_status"),

@@ -96,21 +96,31 @@ def between_pulses_mask(n: int, rate_hz: float, tr: Transitions, *, guard: float
 
 
 # Over 60 lines: one decision after another, each handing the next what it found (see the docstring).
-def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", channel: int = 0
+def conditioning_settings(settings: "HeadSettings") -> ConditionSettings:
+    """The conditioning :func:`head_front_end` applies first: ``settings.condition``, with a fixed
+    ``settings.notch`` (Hz) added to its notches."""
+    cs = settings.condition
+    if settings.notch not in ("auto", "off"):
+        cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (float(settings.notch),), cs.notch_q)
+    return cs
+
+
+def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", channel: int = 0, *,
+                   conditioned: Conditioned | None = None, clip: float | None = None
                    ) -> tuple[Conditioned, Transitions, FrontEndRecord]:
     """Head-signal front end: condition and detect; then refine with the hum fitted on the quiet
     stretches (or a fixed notch) taken out and a low-pass matched to the pulse rate, and detect
     again on the refined signal.
 
+    ``conditioned``: ``x`` already through :func:`condition` with :func:`conditioning_settings`
+    (a caller that needs that signal too makes it once; it is not changed here); ``clip``:
+    ``clipped_fraction(x)``, when the caller has it.
     Returns the conditioned signal, the transitions and the record of every decision taken.
     One function, kept whole (over 60 lines): its steps hand each other the first detection's
     pulse rate and widths, and the order of the refinements is the decision."""
-    cs = settings.condition
-    hum = None
-    if settings.notch not in ("auto", "off"):
-        hum = float(settings.notch)
-        cs = ConditionSettings(cs.highpass_hz, cs.lowpass_hz, (hum,), cs.notch_q)
-    cond = condition(x, rate_hz, cs, channel=channel)
+    cs = conditioning_settings(settings)
+    hum = None if settings.notch in ("auto", "off") else float(settings.notch)
+    cond = conditioned if conditioned is not None else condition(x, rate_hz, cs, channel=channel)
     band = None
     if settings.auto_band and cs.lowpass_hz is None:
         given = getattr(settings, "band_hz", None)
@@ -152,7 +162,7 @@ def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", chan
         if f_lp is not None or f_hp is not None:
             cond = refine(cond, lowpass_hz=f_lp, highpass_hz=f_hp)
             refined = True
-    clipped = clipped_fraction(x) > CLIPPED_FRACTION
+    clipped = (clipped_fraction(x) if clip is None else clip) > CLIPPED_FRACTION
     if refined or clipped:
         tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold, quant_step=q,
                          timing="midpoint" if clipped else "peak")

@@ -29,6 +29,8 @@ def lobe_scan(x, h, floor):
     middle of that plateau (rounded down).  Two neighbouring peaks of one sign are one lobe
     when the signal from the first up to (not including) the second never reaches the
     opposite hysteresis level; a lobe keeps its first peak of largest |x|."""
+    # one compiled loop, kept whole (over 60 lines): the peak search and the lobe grouping are
+    # written out as scipy's and numpy's steps are, so that each can be checked against them
     n = x.size
     peaks = np.empty(n // 2 + 1, np.int64)
     m = 0

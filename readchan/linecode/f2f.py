@@ -37,6 +37,7 @@ import numpy as np
 from scipy.ndimage import median_filter
 
 from readchan._compiled import kernel
+from readchan.smallstats import median
 
 BOUNDARY = 0.75
 """Decision boundary between a half cell and a full cell, in bit periods."""
@@ -117,7 +118,7 @@ def initial_period(intervals_s: np.ndarray, n: int = 16) -> float:
     head = intervals_s[1: n + 1] if intervals_s.size > n + 1 else intervals_s
     if head.size == 0:
         return float("nan")
-    m = float(np.median(head))
+    m = median(head)
     if np.mean(np.abs(head / m - 1) < 0.25) >= 0.75:
         return m
     return float(np.percentile(intervals_s[: 4 * n], 80))

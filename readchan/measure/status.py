@@ -97,9 +97,10 @@ class ChannelStatus:
 
 
 def channel_status(x: np.ndarray, rate_hz: float, channel: int, tr: Transitions, segs, reads, skipped,
-                   fmt=None) -> ChannelStatus:
+                   fmt=None, *, clip: float | None = None) -> ChannelStatus:
     """The state of a decoded channel from its transitions, segments, reads and the segments
-    that gave none (``skipped``, from :func:`readchan.channel.reads_from`)."""
+    that gave none (``skipped``, from :func:`readchan.channel.reads_from`); ``clip``: the
+    channel's :func:`readchan.frontend.detect.clipped_fraction`, when the caller has it."""
     amp = np.abs(tr.amplitude)
     strong = int(np.count_nonzero(amp > ACTIVE_SIGMA * tr.noise_rms)) if tr.kind == "head" else len(tr)
     active = strong >= MIN_ACTIVE
@@ -108,7 +109,8 @@ def channel_status(x: np.ndarray, rate_hz: float, channel: int, tr: Transitions,
             if r.track_evidence is not None and r.track_evidence.pw50_cell is not None and len(r.bits)]
     sampling = channel_sampling(rate_hz, period_s=periods, pw50_s=pw50,
                                 intervals_s=None if periods or not active else pulse_intervals(tr))
-    clip = clipped_fraction(np.asarray(x, float)) if tr.kind == "head" and x.size else 0.0
+    if clip is None or tr.kind != "head":
+        clip = clipped_fraction(np.asarray(x, float)) if tr.kind == "head" and x.size else 0.0
     n = len(tr)
     recording = bool(reads) or any(s.stage in ("no-sentinel", "few-zeros") for s in skipped)
     if reads:

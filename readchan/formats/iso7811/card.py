@@ -29,7 +29,8 @@ from readchan.formats.iso7813 import CardFields, layout_errors, parse_fields
 from readchan.formats.registry import Format, register
 from readchan.frontend.condition import ConditionSettings, check_condition_settings, condition
 from readchan.frontend.detect import Transitions, classify_kind, clipped_fraction, detect_logic
-from readchan.frontend.head import CLIPPED_FRACTION, FrontEndRecord, head_front_end, only_white_noise
+from readchan.frontend.head import (CLIPPED_FRACTION, FrontEndRecord, conditioning_settings, head_front_end,
+                                    only_white_noise)
 from readchan.frontend.segment import Segment, segment
 from readchan.linecode.f2f import BitStream, recover_bits
 from readchan.results import ChannelResult, Read
@@ -158,13 +159,19 @@ def check_fields(reads: tuple[Read, ...]) -> tuple[Read, ...]:
     return tuple(out)
 
 
+def wide_settings(settings: "CardSettings") -> ConditionSettings:
+    """The conditioning of the signal the PW50 is measured on: the baseline high-pass alone."""
+    return ConditionSettings(highpass_hz=settings.condition.highpass_hz or None)
+
+
 def assign_tracks(reads: tuple[Read, ...], x: np.ndarray, rate_hz: float, settings: "CardSettings", *,
-                  kind: str = "head", channel: int = 0, n_channels: int = 1) -> tuple[Read, ...]:
+                  kind: str = "head", channel: int = 0, n_channels: int = 1,
+                  wide: np.ndarray | None = None) -> tuple[Read, ...]:
     """Each read with its track decided from the evidence (:func:`readchan.formats.iso7811.density.decide_track`):
     the clocking zeros' PW50 over the bit cell (head captures, on the signal with only the
     baseline removed, so that no low-pass widens the pulses; measured on every head read, for
-    the sampling check too) and the leading zeros; the speed and the fields follow the track."""
-    wide = None
+    the sampling check too) and the leading zeros; the speed and the fields follow the track.
+    ``wide``: that signal, when the caller has it (``x`` through :func:`wide_settings`)."""
     out = []
     for r in reads:
         fr, bs = r.frame, r.bits
@@ -172,8 +179,7 @@ def assign_tracks(reads: tuple[Read, ...], x: np.ndarray, rate_hz: float, settin
         pw = None
         if kind == "head":
             if wide is None:
-                hp = settings.condition.highpass_hz
-                wide = condition(x, rate_hz, ConditionSettings(highpass_hz=hp or None), channel=channel).signal
+                wide = condition(x, rate_hz, wide_settings(settings), channel=channel).signal
             tr = r.transitions
             bit_of = np.clip(np.searchsorted(bs.first_transition, np.arange(len(tr)), side="right") - 1,
                              0, max(len(bs) - 1, 0))
@@ -279,8 +285,9 @@ def decode_card_channel(x: np.ndarray, rate_hz: float, settings: "CardSettings",
     ``formats`` tried when ``settings.fmt`` is None, and the channel's status."""
     from readchan.measure.status import channel_status
 
-    cond = None
+    cond = first = wide = None
     record = FrontEndRecord(kind)
+    clip = clipped_fraction(x) if kind == "head" and x.size else 0.0
     if kind == "logic":
         tr = detect_logic(x, rate_hz)
     elif only_white_noise(x, rate_hz):
@@ -290,16 +297,21 @@ def decode_card_channel(x: np.ndarray, rate_hz: float, settings: "CardSettings",
         tr = Transitions.empty("head", rate_hz, float(np.std(x)))
         record = FrontEndRecord(kind, silent=True)
     else:
-        cond, tr, record = head_front_end(x, rate_hz, settings, channel)
+        # the PW50's wide-band signal is the front end's first conditioning when no low-pass or
+        # notch is set (the default): made once, for both (the same values)
+        if conditioning_settings(settings) == wide_settings(settings):
+            first = condition(x, rate_hz, wide_settings(settings), channel=channel)
+            wide = first.signal
+        cond, tr, record = head_front_end(x, rate_hz, settings, channel, conditioned=first, clip=clip)
     segs = segment(tr)
     skipped: list = []
-    clipped = kind == "head" and clipped_fraction(x) > CLIPPED_FRACTION
+    clipped = kind == "head" and clip > CLIPPED_FRACTION
     reads = reads_from(tr, segs, settings, channel=channel, n_channels=n_channels, source=source, skipped=skipped,
                        clipped=clipped, formats=formats)
-    reads = assign_tracks(reads, x, rate_hz, settings, kind=kind, channel=channel, n_channels=n_channels)
+    reads = assign_tracks(reads, x, rate_hz, settings, kind=kind, channel=channel, n_channels=n_channels, wide=wide)
     if settings.field_check:
         reads = check_fields(reads)
-    status = channel_status(x, rate_hz, channel, tr, segs, reads, skipped, settings.fmt)
+    status = channel_status(x, rate_hz, channel, tr, segs, reads, skipped, settings.fmt, clip=clip)
     return ChannelResult(channel, kind, cond, tr, tuple(segs), reads, record.hum_hz, status, family="card",
                          front_end=record)
 

@@ -44,6 +44,7 @@ import numpy as np
 from readchan.frontend.detect import TR_EXTRA, TR_MISSING, Transitions
 from readchan.formats.iso7811.framing import Frame
 from readchan.linecode.f2f import BitStream
+from readchan.smallstats import median
 
 __all__ = ["EVIDENCE", "MAX_DAMAGED_CHARS", "damage_evidence", "damaged_characters", "boundary_steps"]
 
@@ -131,7 +132,7 @@ def boundary_steps(start_s: np.ndarray, w: int = WINDOW) -> tuple[np.ndarray, np
 def _scale(v: np.ndarray) -> float:
     """Robust standard deviation of zero-centred values: median |v| / 0.6745 (the median of
     a half-normal distribution is 0.6745 σ)."""
-    return float(np.median(np.abs(v))) / 0.6745 if v.size else 0.0
+    return median(np.abs(v)) / 0.6745 if v.size else 0.0
 
 
 def bit_statistics(bs: BitStream) -> dict[str, np.ndarray | float]:
@@ -167,7 +168,7 @@ def pulse_size(tr: Transitions) -> tuple[np.ndarray, float]:
     ok = (env > 0) & (a > 0)
     la = np.zeros(a.size)
     la[ok] = np.log(a[ok] / env[ok])
-    dev = np.abs(la - (np.median(la[ok]) if ok.any() else 0.0))
+    dev = np.abs(la - (median(la[ok]) if ok.any() else 0.0))
     dev[~ok] = 0.0
     return dev, _scale(dev[ok]) if ok.any() else 0.0
 
