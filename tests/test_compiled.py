@@ -157,3 +157,17 @@ def test_a_sample_kernel_leaves_short_signals_to_the_numpy_path():
     assert not k.ready(600)
     assert k.ready(600) and k.compiled
     assert scan.lobe_scan.jit_after == _compiled.SAMPLE_JIT_AFTER
+
+
+@pytest.mark.parametrize("bands", [((4, 0.2, "lowpass"),), ((2, 0.01, "highpass"),),
+                                   ((4, 0.3, "lowpass"), (2, 0.02, "highpass"))])
+def test_zero_phase_pass_compiled_equals_scipy_sosfiltfilt(bands):
+    from scipy import signal as sps
+
+    from readchan.frontend import zerophase
+
+    sos = np.concatenate([sps.butter(o, f, btype=b, output="sos") for o, f, b in bands])
+    x = np.round(_lobe_signal(9, 5000) * 300) / 300 + np.linspace(0, 0.1, 5000)
+    ntaps = 2 * sos.shape[0] + 1 - min(int(np.sum(sos[:, 2] == 0)), int(np.sum(sos[:, 5] == 0)))
+    got = zerophase._zero_phase.compile_now()._run(sos, x, 3 * ntaps, sps.sosfilt_zi(sos))
+    _same(got, sps.sosfiltfilt(sos, x))

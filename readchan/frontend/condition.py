@@ -27,6 +27,7 @@ import numpy as np
 from scipy import signal as sps
 
 from readchan.errors import ParameterError
+from readchan.frontend import zerophase
 
 
 @dataclass(frozen=True)
@@ -134,7 +135,7 @@ def condition(samples: np.ndarray, rate_hz: float, settings: ConditionSettings =
     if settings.lowpass_hz:
         _check_corner("lowpass_hz", settings.lowpass_hz, nyq)
         sos = _butter(4, settings.lowpass_hz, "lowpass", rate_hz)
-        y = sps.sosfiltfilt(sos, y)
+        y = zerophase.sosfiltfilt(sos, y)
     return Conditioned(signal=np.ascontiguousarray(y), rate_hz=float(rate_hz), dc_offset=dc, channel=channel)
 
 
@@ -252,8 +253,8 @@ def refine(c: Conditioned, *, lowpass_hz: float | None = None, highpass_hz: floa
         sos.append(_butter(4, lowpass_hz, "lowpass", c.rate_hz))
     if highpass_hz is not None:
         sos.append(_butter(2, highpass_hz, "highpass", c.rate_hz))
-    y = sps.sosfiltfilt(np.concatenate(sos), c.signal)
-    return Conditioned(np.ascontiguousarray(y), c.rate_hz, c.dc_offset, c.channel)
+    y = zerophase.sosfiltfilt(np.concatenate(sos), c.signal)     # scipy's values, fewer copies
+    return Conditioned(y, c.rate_hz, c.dc_offset, c.channel)
 
 
 @functools.lru_cache(maxsize=64)
