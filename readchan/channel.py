@@ -23,10 +23,12 @@ import numpy as np
 from readchan.errors import ParameterError
 from readchan.formats.iso7811.charset import TRACKS, CharFormat
 from readchan.frontend.condition import MIN_NOTCH_HZ, ConditionSettings, check_frequency
+from readchan.frontend.head import FrontEndDecisions
 from readchan.io.capture import Capture, NonPhysicalSampleWarning, check_rate_range, describe_outliers, display_path, repair_outliers
 from readchan.results import ChannelResult, Read
 
-__all__ = ["ChannelResult", "DecodeSettings", "Notch", "Read", "SignalKind", "decode_capture", "decode_channel"]
+__all__ = ["ChannelResult", "DecodeSettings", "FrontEndDecisions", "Notch", "Read", "SignalKind", "decode_capture",
+           "decode_channel", "front_end_decisions"]
 
 
 class SignalKind(str, Enum):
@@ -135,14 +137,19 @@ class DecodeSettings:
 
 
 def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = DecodeSettings(), *,
-                   channel: int = 0, n_channels: int = 1, source: str = "") -> ChannelResult:
+                   channel: int = 0, n_channels: int = 1, source: str = "",
+                   decisions: FrontEndDecisions | None = None) -> ChannelResult:
     """Decode one channel's samples ``x`` at ``rate_hz`` (Hz).
 
     Non-physical samples (:func:`readchan.io.capture.repair_outliers`) are replaced by
     interpolation first, with one :class:`~readchan.io.capture.NonPhysicalSampleWarning` naming
     their count and position; the result's ``outliers`` holds their indices.  Then each family
     of the formats to try (:func:`readchan.formats.registry.candidates`) decodes the channel in
-    turn; the first result its family claims is the channel's, else the first family's."""
+    turn; the first result its family claims is the channel's, else the first family's.
+
+    ``decisions``: the capture's front-end decisions (:func:`front_end_decisions`), which the card
+    family's head front end takes instead of deciding them from ``x`` (a stretch of a long
+    capture; the tape families decide their own)."""
     from readchan.formats.registry import candidates, families
 
     check_rate_range(rate_hz)
@@ -153,9 +160,10 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
                       NonPhysicalSampleWarning, stacklevel=2)
     first = None
     groups = families(candidates(settings.format, settings.fmt))
-    for _, formats in groups:
+    for family, formats in groups:
+        extra = {"decisions": decisions} if decisions is not None and family == "card" else {}
         result = formats[0].decode(x, rate_hz, settings, formats, kind=settings.kind.value, channel=channel,
-                                   n_channels=n_channels, source=source)
+                                   n_channels=n_channels, source=source, **extra)
         if len(groups) == 1 or formats[0].claims(result):
             first = result
             break
@@ -163,6 +171,18 @@ def decode_channel(x: np.ndarray, rate_hz: float, settings: DecodeSettings = Dec
         if first.front_end is not None and first.front_end.silent:
             break                   # white noise or constant: no other family reads it either
     return replace(first, outliers=outliers)
+
+
+def front_end_decisions(x: np.ndarray, rate_hz: float, settings: DecodeSettings = DecodeSettings(), *,
+                        channel: int = 0) -> FrontEndDecisions:
+    """The head front end's decisions (:class:`readchan.frontend.head.FrontEndDecisions`: noise
+    floor, hum frequency, band corners, converter step) from one channel's samples ``x`` at
+    ``rate_hz`` (Hz), to decode the stretches of the same capture with (:func:`decode_channel`'s
+    ``decisions``).  ``x`` is repaired first, as :func:`decode_channel` does."""
+    from readchan.frontend.head import front_end_decisions as decide
+
+    check_rate_range(rate_hz)
+    return decide(repair_outliers(x)[0], rate_hz, settings, channel)
 
 
 def decode_capture(cap: Capture, settings: DecodeSettings = DecodeSettings(),

@@ -343,7 +343,7 @@ def fit_hum(x: np.ndarray, rate_hz: float, quiet: np.ndarray, *, significance: f
     The quiet samples are averaged over ~0.5 ms and taken at ~2 kHz.  Returns None unless at
     least three mains cycles of quiet samples exist and the fitted amplitude exceeds
     ``significance`` × its standard error (σ·√(2/N)) and ``min_level`` × the capture's peak
-    level.
+    level.  ``freq_hz``: fit at this fundamental (Hz) only, without the grid search.
     """
     q = np.flatnonzero(quiet)
     if q.size < 3 * rate_hz / 50.0:

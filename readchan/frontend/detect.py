@@ -143,7 +143,7 @@ def quantisation_step(x: np.ndarray) -> float:
 
 def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
                 floor_sigma: float = 4.5, window: int = 15, timing: str = "peak",
-                quant_step: float = 0.0) -> Transitions:
+                quant_step: float = 0.0, noise: float | None = None) -> Transitions:
     """Detect pulse peaks in a conditioned head signal ``x``.
 
     Parameters
@@ -161,6 +161,8 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
         the noise is taken as at least step/√12 (the uniform-error model; Widrow & Kollár,
         *Quantization Noise*, 2008) and the candidate floor as at least two steps: a one-level
         excursion is the converter's rounding, never a pulse.
+    noise : the noise RMS (capture units) to set the floor from, instead of measuring it here
+        (:func:`noise_rms`): a capture's own, decided once for all its stretches.
 
     Notes
     -----
@@ -179,7 +181,7 @@ def detect_head(x: np.ndarray, rate_hz: float, *, threshold: float = 0.4,
     alternation rule is resolved one case at a time (the only loop, over those cases).
     """
     x = np.asarray(x, dtype=float)
-    sigma = max(noise_rms(x, rate_hz), quant_step / np.sqrt(12.0))
+    sigma = max(noise_rms(x, rate_hz) if noise is None else float(noise), quant_step / np.sqrt(12.0))
     step = max(1, x.size // 500_000)
     big = float(np.percentile(np.abs(x[::step]), 99.9)) if x.size else 0.0
     if not big > 0:

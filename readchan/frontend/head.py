@@ -18,6 +18,7 @@ from typing import Protocol
 
 import numpy as np
 
+from readchan.errors import ParameterError
 from readchan.frontend.condition import ConditionSettings, Conditioned, condition, fit_hum, refine, signal_band_hz
 from readchan.frontend.band import auto_highpass_hz, auto_lowpass_hz, pulse_width_s
 from readchan.frontend.detect import Transitions, clipped_fraction, detect_head, quantisation_step
@@ -105,22 +106,110 @@ def conditioning_settings(settings: "HeadSettings") -> ConditionSettings:
     return cs
 
 
+@dataclass(frozen=True)
+class FrontEndDecisions:
+    """The front end's decisions for a whole capture, taken once (:func:`front_end_decisions`)
+    and given to the decode of each of its stretches (``head_front_end(..., decisions=...)``,
+    ``readchan.channel.decode_channel(..., decisions=...)``), which then does not estimate them
+    again.
+
+    Attributes
+    ----------
+    rate_hz : the sample rate they were taken at, Hz (a stretch at another rate is refused).
+    quant_step : the converter step (capture units; 0 when none), :func:`quantisation_step`.
+    band_hz : the first pass's signal band, Hz, or None (:func:`signal_band_hz`).
+    lowpass_hz, highpass_hz : the refinement's corners, Hz, or None (none applied).
+    hum_hz : the mains frequency fitted on the capture, Hz, or None (no significant hum, or
+        ``notch`` not ``auto``).  A stretch fits only the hum's amplitude and phase at this
+        frequency on its own quiet samples (one least-squares solve instead of the grid search):
+        a phase carried over from the capture would drift, as a frequency known to 0.02 Hz
+        slips a whole cycle in under a minute.
+    noise_rms : the detector's noise RMS on the refined signal (capture units): the floor of
+        every stretch's detection (:func:`readchan.frontend.detect.detect_head`), instead of the
+        stretch's own quietest 1 ms blocks, which a stretch that is mostly swipe lacks.
+    """
+
+    rate_hz: float
+    quant_step: float = 0.0
+    band_hz: float | None = None
+    lowpass_hz: float | None = None
+    highpass_hz: float | None = None
+    hum_hz: float | None = None
+    noise_rms: float | None = None
+
+
+def front_end_decisions(x: np.ndarray, rate_hz: float, settings: "HeadSettings", channel: int = 0
+                        ) -> FrontEndDecisions:
+    """The :class:`FrontEndDecisions` of a capture from its samples ``x`` (one channel, capture
+    units) at ``rate_hz`` (Hz): :func:`head_front_end` run on them, its record kept.  ``x`` may
+    be the whole capture or a representative part of it (its first active spans, with some
+    quiet between them for the noise and the hum)."""
+    _, tr, rec = head_front_end(x, rate_hz, settings, channel)
+    return FrontEndDecisions(float(rate_hz), rec.quant_step, rec.band_hz, rec.lowpass_hz, rec.highpass_hz,
+                             rec.hum_hz if rec.hum_fitted else None, float(tr.noise_rms))
+
+
+def _decided_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", d: FrontEndDecisions,
+                       cond: Conditioned, clip: float) -> tuple[Conditioned, Transitions, FrontEndRecord]:
+    """:func:`head_front_end` with the capture's decisions ``d``: the hum refitted at ``d.hum_hz``
+    on this stretch's quiet samples (found by a first detection, only then), the refinement at
+    ``d``'s corners, one detection at ``d``'s noise floor."""
+    if abs(d.rate_hz - rate_hz) > 1e-9 * rate_hz:
+        raise ParameterError(f"front-end decisions taken at {d.rate_hz:g} Hz cannot decode samples at {rate_hz:g} Hz")
+    q, band = d.quant_step, d.band_hz
+    hum = None if settings.notch in ("auto", "off") else float(settings.notch)
+    if settings.notch == "auto" and d.hum_hz is not None:
+        first = refine(cond, lowpass_hz=1.5 * band) if band is not None else cond
+        tr = detect_head(first.signal, rate_hz, threshold=settings.threshold, quant_step=q)
+        quiet, level = _hum_quiet(x.size, rate_hz, tr)
+        fit = fit_hum(cond.signal, rate_hz, quiet, min_level=level, freq_hz=d.hum_hz)
+        if fit is not None:
+            hum = fit.freq_hz
+            cond = Conditioned(cond.signal - fit.waveform(x.size, rate_hz), rate_hz, cond.dc_offset, cond.channel)
+    f_lp, f_hp = (d.lowpass_hz, d.highpass_hz) if settings.auto_band else (None, None)
+    if f_lp is None and f_hp is None and band is not None:
+        f_lp = 1.5 * band                  # the first pass's band limit is then the only one
+    cond = refine(cond, lowpass_hz=f_lp, highpass_hz=f_hp)
+    clipped = clip > CLIPPED_FRACTION
+    tr = detect_head(cond.signal, rate_hz, threshold=settings.threshold, quant_step=q, noise=d.noise_rms,
+                     timing="midpoint" if clipped else "peak")
+    record = FrontEndRecord("head", float(cond.dc_offset), hum, settings.notch == "auto" and hum is not None,
+                            band, f_lp, f_hp, float(q), bool(clipped))
+    return cond, tr, record
+
+
+def _hum_quiet(n: int, rate_hz: float, tr: Transitions) -> tuple[np.ndarray, float]:
+    """The samples to fit hum on (away from the segments of ``tr``, or mid-gap between its
+    pulses when there is no quiet stretch) and the least hum level that counts there."""
+    quiet = quiet_mask(n, rate_hz, segment(tr))
+    if np.count_nonzero(quiet) >= 3 * rate_hz / 50.0:
+        return quiet, 0.02
+    # No quiet stretch: fit between pulses, mid-gap only.  Pulse tails leak the data's own
+    # pattern in there (a run of BCD zeros repeats at bit rate / 5, which can sit near 50 or
+    # 60 Hz), so only hum strong enough to matter (10 % of the peak) counts.
+    return between_pulses_mask(n, rate_hz, tr, guard=0.4), 0.1
+
+
 def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", channel: int = 0, *,
-                   conditioned: Conditioned | None = None, clip: float | None = None
-                   ) -> tuple[Conditioned, Transitions, FrontEndRecord]:
+                   conditioned: Conditioned | None = None, clip: float | None = None,
+                   decisions: FrontEndDecisions | None = None) -> tuple[Conditioned, Transitions, FrontEndRecord]:
     """Head-signal front end: condition and detect; then refine with the hum fitted on the quiet
     stretches (or a fixed notch) taken out and a low-pass matched to the pulse rate, and detect
     again on the refined signal.
 
     ``conditioned``: ``x`` already through :func:`condition` with :func:`conditioning_settings`
     (a caller that needs that signal too makes it once; it is not changed here); ``clip``:
-    ``clipped_fraction(x)``, when the caller has it.
+    ``clipped_fraction(x)``, when the caller has it; ``decisions``: the capture's
+    (:class:`FrontEndDecisions`), used instead of deciding from ``x``.
     Returns the conditioned signal, the transitions and the record of every decision taken.
     One function, kept whole (over 60 lines): its steps hand each other the first detection's
     pulse rate and widths, and the order of the refinements is the decision."""
     cs = conditioning_settings(settings)
     hum = None if settings.notch in ("auto", "off") else float(settings.notch)
     cond = conditioned if conditioned is not None else condition(x, rate_hz, cs, channel=channel)
+    if decisions is not None:
+        return _decided_front_end(x, rate_hz, settings, decisions, cond,
+                                  clipped_fraction(x) if clip is None else clip)
     band = None
     if settings.auto_band and cs.lowpass_hz is None:
         given = getattr(settings, "band_hz", None)
@@ -131,14 +220,7 @@ def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", chan
     refined = False
     hum_hint = getattr(settings, "hum_hz", None)
     if settings.notch == "auto" and hum_hint != 0.0:
-        quiet = quiet_mask(x.size, rate_hz, segment(tr))
-        level = 0.02
-        if np.count_nonzero(quiet) < 3 * rate_hz / 50.0:
-            # No quiet stretch: fit between pulses, mid-gap only.  Pulse tails leak the data's
-            # own pattern in there (a run of BCD zeros repeats at bit rate / 5, which can sit
-            # near 50 or 60 Hz), so only hum strong enough to matter (10 % of the peak) counts.
-            quiet = between_pulses_mask(x.size, rate_hz, tr, guard=0.4)
-            level = 0.1
+        quiet, level = _hum_quiet(x.size, rate_hz, tr)
         fit = fit_hum(cond.signal, rate_hz, quiet, min_level=level, freq_hz=hum_hint)
         if fit is not None:
             hum = fit.freq_hz

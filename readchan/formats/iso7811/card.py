@@ -29,8 +29,8 @@ from readchan.formats.iso7813 import CardFields, layout_errors, parse_fields
 from readchan.formats.registry import Format, register
 from readchan.frontend.condition import ConditionSettings, check_condition_settings, condition
 from readchan.frontend.detect import Transitions, classify_kind, clipped_fraction, detect_logic
-from readchan.frontend.head import (CLIPPED_FRACTION, FrontEndRecord, conditioning_settings, head_front_end,
-                                    only_white_noise)
+from readchan.frontend.head import (CLIPPED_FRACTION, FrontEndDecisions, FrontEndRecord, conditioning_settings,
+                                    head_front_end, only_white_noise)
 from readchan.frontend.segment import Segment, segment
 from readchan.linecode.f2f import BitStream, recover_bits
 from readchan.results import ChannelResult, Read
@@ -278,11 +278,14 @@ def _checked(fr: Frame, fmt: CharFormat, sub: Transitions, bs: BitStream, settin
 
 def decode_card_channel(x: np.ndarray, rate_hz: float, settings: "CardSettings", *, kind: str, channel: int = 0,
                         n_channels: int = 1, source: str = "",
-                        formats: tuple[CharFormat, ...] = KNOWN_FORMATS) -> ChannelResult:
+                        formats: tuple[CharFormat, ...] = KNOWN_FORMATS,
+                        decisions: FrontEndDecisions | None = None) -> ChannelResult:
     """The card channel over one channel's (repaired) samples ``x`` at ``rate_hz`` (Hz): the
     front end for the signal ``kind`` (``head`` or ``logic``), segmentation, then the card rules
     (:func:`reads_from`, :func:`assign_tracks`, :func:`check_fields`) with the character
-    ``formats`` tried when ``settings.fmt`` is None, and the channel's status."""
+    ``formats`` tried when ``settings.fmt`` is None, and the channel's status.  ``decisions``:
+    the capture's front-end decisions for a head signal
+    (:class:`readchan.frontend.head.FrontEndDecisions`), taken instead of deciding from ``x``."""
     from readchan.measure.status import channel_status
 
     cond = first = wide = None
@@ -302,7 +305,8 @@ def decode_card_channel(x: np.ndarray, rate_hz: float, settings: "CardSettings",
         if conditioning_settings(settings) == wide_settings(settings):
             first = condition(x, rate_hz, wide_settings(settings), channel=channel)
             wide = first.signal
-        cond, tr, record = head_front_end(x, rate_hz, settings, channel, conditioned=first, clip=clip)
+        cond, tr, record = head_front_end(x, rate_hz, settings, channel, conditioned=first, clip=clip,
+                                          decisions=decisions)
     segs = segment(tr)
     skipped: list = []
     clipped = kind == "head" and clip > CLIPPED_FRACTION
@@ -325,13 +329,14 @@ CARD_FRONT_END = "pulse peaks of a head signal, or the edges of a logic-level si
 
 
 def decode_card_family(x: np.ndarray, rate_hz: float, settings: "CardSettings", formats: tuple, *, kind: str,
-                       channel: int = 0, n_channels: int = 1, source: str = "") -> ChannelResult:
+                       channel: int = 0, n_channels: int = 1, source: str = "",
+                       decisions: FrontEndDecisions | None = None) -> ChannelResult:
     """The registry's channel decoder for card formats: :func:`decode_card_channel` with the
     signal kind decided (:func:`readchan.frontend.detect.classify_kind` for ``auto``) and the
     registered card ``formats``' character formats tried in order."""
     resolved = classify_kind(x) if kind == "auto" else kind
     return decode_card_channel(x, rate_hz, settings, kind=resolved, channel=channel, n_channels=n_channels,
-                               source=source, formats=tuple(f.char_format for f in formats))
+                               source=source, formats=tuple(f.char_format for f in formats), decisions=decisions)
 
 
 def card_claims(result: ChannelResult) -> bool:
