@@ -47,6 +47,11 @@ minutes of 48 kHz signal through the detector's two passes, where the numpy path
 numba and loading the cached kernel does (≈ 0.45 s)."""
 
 
+_LOADED = False
+"""numba has been imported for some kernel: a sample kernel then compiles (loads its cached
+code) at once, since the import, the larger part of the cost, is paid."""
+
+
 class Kernel:
     """A function compiled once enough work has gone through it; see the module docstring."""
 
@@ -71,6 +76,8 @@ class Kernel:
             import numba
         except ImportError:          # the plain function gives the same results, only slower
             return self.py_func
+        global _LOADED
+        _LOADED = True
         return numba.njit(cache=True, nogil=True)(self.py_func)
 
     @property
@@ -85,11 +92,12 @@ class Kernel:
 
     def ready(self, work: int) -> bool:
         """Count ``work`` elements and say whether the compiled code runs them (compiling, or
-        loading from the cache, once :attr:`jit_after` is passed); False while the caller should
+        loading from the cache, once :attr:`jit_after` is passed or numba is loaded for another
+        kernel, :data:`_LOADED`); False while the caller should
         take its numpy path instead, and always False without numba or with ``READCHAN_NO_JIT=1``."""
         if self._run is None:
             self._work += int(work)
-            if self._work <= self.jit_after:
+            if self._work <= self.jit_after and not _LOADED:
                 return False
             self._run = self._compile()
         return self.compiled

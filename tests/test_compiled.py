@@ -150,9 +150,10 @@ def test_lobe_scan_compiled_equals_the_numpy_lobe_peaks(seed, monkeypatch):
         _same(scan.lobe_scan.py_func(x, h, floor), expected)
 
 
-def test_a_sample_kernel_leaves_short_signals_to_the_numpy_path():
+def test_a_sample_kernel_leaves_short_signals_to_the_numpy_path(monkeypatch):
     from readchan.frontend import scan
 
+    monkeypatch.setattr(_compiled, "_LOADED", False)
     k = _compiled.kernel(_double, jit_after=1000)
     assert not k.ready(600)
     assert k.ready(600) and k.compiled
@@ -171,3 +172,22 @@ def test_zero_phase_pass_compiled_equals_scipy_sosfiltfilt(bands):
     ntaps = 2 * sos.shape[0] + 1 - min(int(np.sum(sos[:, 2] == 0)), int(np.sum(sos[:, 5] == 0)))
     got = zerophase._zero_phase.compile_now()._run(sos, x, 3 * ntaps, sps.sosfilt_zi(sos))
     _same(got, sps.sosfiltfilt(sos, x))
+
+
+def test_a_sample_kernel_compiles_at_once_when_numba_is_loaded_for_another(monkeypatch):
+    monkeypatch.setattr(_compiled, "_LOADED", True)
+    k = _compiled.kernel(_double, jit_after=10 ** 9)
+    assert k.ready(1) and k.compiled
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_parabola_times_compiled_equal_the_numpy_path(seed, monkeypatch):
+    from readchan.frontend import scan
+
+    x = _lobe_signal(seed)
+    idx = np.concatenate(([0, 1, x.size - 1], np.sort(np.random.default_rng(seed).integers(0, x.size, 300))))
+    monkeypatch.setattr(scan.parabola, "_run", None)
+    monkeypatch.setattr(scan.parabola, "_work", -10 ** 12)
+    monkeypatch.setattr(_compiled, "_LOADED", False)
+    expected = detect._parabolic_times(x, idx)                       # numpy path
+    _same(scan.parabola.compile_now()._run(idx.astype(np.int64), x), expected)

@@ -37,7 +37,7 @@ from scipy import signal as sps
 from scipy.ndimage import maximum_filter1d, median_filter, percentile_filter
 
 from readchan._compiled import kernel
-from readchan.frontend.scan import lobe_scan
+from readchan.frontend.scan import lobe_scan, parabola
 
 # Transition flags (``Transitions.flags``).  The line decoder's per-bit flags are ``BIT_*`` in
 # readchan.linecode.f2f: the two sets share values, so each has its own prefix and mask.
@@ -337,9 +337,12 @@ def level_midpoint_times(x: np.ndarray, idx: np.ndarray, *, level: float = 0.75)
 
 
 def _parabolic_times(x: np.ndarray, i: np.ndarray) -> np.ndarray:
-    """Sub-sample peak positions (in samples) from a parabola through samples i−1, i, i+1."""
+    """Sub-sample peak positions (in samples) from a parabola through samples i−1, i, i+1
+    (compiled, :func:`readchan.frontend.scan.parabola`, once enough peaks have gone through; the same values)."""
     if i.size == 0:
         return np.zeros(0)
+    if x.size >= 3 and parabola.ready(i.size):
+        return parabola(np.ascontiguousarray(i, dtype=np.int64), x)
     ic = np.clip(i, 1, x.size - 2)
     ym, y0, yp = x[ic - 1], x[ic], x[ic + 1]
     den = ym - 2 * y0 + yp

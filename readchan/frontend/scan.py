@@ -1,8 +1,12 @@
-"""Compiled whole-signal scans of the detector: the lobes' peaks in one pass over the samples.
+"""Compiled scans of the detector: the lobes' peaks in one pass over the samples, and the
+peaks' sub-sample times.
 
-Input: a conditioned head signal (float64, capture units), the hysteresis and floor levels.
+Input: a conditioned head signal (float64, capture units), the hysteresis and floor levels;
+for the times, the peaks' sample indices.
 Output: the index (int64) and sign (int8) of the tallest peak above the floor in every lobe,
-the same values as the numpy path of :func:`readchan.frontend.detect._lobe_peaks`.
+the same values as the numpy path of :func:`readchan.frontend.detect._lobe_peaks`; the
+parabola-vertex time of each peak (samples), the same as :func:`readchan.frontend.detect._parabolic_times`'s
+numpy path.  Both have a numpy path their callers take until they are compiled.
 
 The numpy path makes |x|, masks it, finds its peaks (``scipy.signal.find_peaks``), takes the
 minimum and maximum between neighbouring peaks (``reduceat``) and groups the peaks into lobes
@@ -36,13 +40,14 @@ def lobe_scan(x, h, floor):
     m = 0
     i = 1
     i_max = n - 1
+    prev = abs(x[0]) if n else 0.0                 # |x[i - 1]|, floored, carried along
+    if prev <= floor:
+        prev = 0.0
     while i < i_max:
-        prev = abs(x[i - 1])
-        if prev <= floor:
-            prev = 0.0
         cur = abs(x[i])
         if cur <= floor:
             cur = 0.0
+        nxt = cur
         if prev < cur:
             i_ahead = i + 1
             ahead = abs(x[i_ahead])
@@ -57,6 +62,8 @@ def lobe_scan(x, h, floor):
                 peaks[m] = (i + i_ahead - 1) // 2
                 m += 1
                 i = i_ahead
+                nxt = ahead
+        prev = nxt
         i += 1
     keep = np.empty(m, np.int64)
     sgn = np.empty(m, np.int8)
@@ -93,3 +100,18 @@ def lobe_scan(x, h, floor):
     sgn[k] = best_sign
     k += 1
     return keep[:k].copy(), sgn[:k].copy()
+
+
+@kernel(jit_after=SAMPLE_JIT_AFTER // 10)
+def parabola(i, x):
+    """The vertex of the parabola through samples i−1, i, i+1 of ``x`` for each index ``i``
+    (clipped to 1 … n−2), in samples, moved by at most half a sample; a flat top: ``i``."""
+    out = np.empty(i.size)
+    hi = x.size - 2
+    for k in range(i.size):
+        c = min(max(i[k], 1), hi)
+        ym, y0, yp = x[c - 1], x[c], x[c + 1]
+        den = ym - 2 * y0 + yp
+        d = 0.5 * (ym - yp) / den if abs(den) > 1e-300 else 0.0
+        out[k] = c + min(max(d, -0.5), 0.5)
+    return out

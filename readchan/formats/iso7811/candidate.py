@@ -112,7 +112,10 @@ def build_candidate(seq: np.ndarray, start: int, codes: np.ndarray, par_ok: np.n
     # Valid also needs clocking zeros after the LRC: data going on past it means the end
     # sentinel was a damaged data character and the "LRC" after it agreed by chance.
     valid = bool(complete and starts and parity_good and lrc_ok and zeros_after)
-    text = "".join(chr(int(c) + fmt.offset) for c in data)
+    chars = data + fmt.offset
+    # one byte per character (Latin-1 is chr() below 256), else character by character
+    text = (chars.astype(np.uint8).tobytes().decode("latin-1") if chars.size and 0 <= chars.min() and chars.max() < 256
+            else "".join(chr(int(c)) for c in chars))
     found = Frame(
         format=fmt.name,
         direction=direction,

@@ -126,12 +126,13 @@ def code_bits(codes: np.ndarray, fmt: CharFormat) -> np.ndarray:
     return np.concatenate([data, parity[:, None].astype(np.uint8)], axis=1)
 
 
+_POPCOUNT = np.array([bin(v).count("1") for v in range(256)], dtype=np.int64)
+"""Set bits of every byte value, looked up by :func:`popcount`."""
+
+
 def popcount(values: np.ndarray) -> np.ndarray:
-    values = np.asarray(values, dtype=np.int64)
-    count = np.zeros(values.shape, dtype=np.int64)
-    for k in range(8):
-        count += (values >> k) & 1
-    return count
+    """Set bits among the low 8 bits of each value (int64; two's complement for negatives)."""
+    return _POPCOUNT[np.asarray(values, dtype=np.int64) & 0xFF]
 
 
 def can_correct(fmt: CharFormat) -> bool:
