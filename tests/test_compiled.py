@@ -191,3 +191,25 @@ def test_parabola_times_compiled_equal_the_numpy_path(seed, monkeypatch):
     monkeypatch.setattr(_compiled, "_LOADED", False)
     expected = detect._parabolic_times(x, idx)                       # numpy path
     _same(scan.parabola.compile_now()._run(idx.astype(np.int64), x), expected)
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_clocking_pw50_compiled_equals_the_numpy_path(seed, monkeypatch):
+    from readchan.formats.iso7811 import density
+
+    rng = np.random.default_rng(seed)
+    cell = 40.0                                         # samples per bit cell: clocking zeros
+    centres = 30 + cell * np.arange(60) + rng.uniform(-1, 1, 60)
+    t = np.arange(int(centres[-1]) + 200)
+    w = sum((-1) ** k / (1 + ((t - c) / 4.0) ** 2) for k, c in enumerate(centres)) + rng.normal(0, 0.01, t.size)
+    idx = np.round(centres).astype(np.int64)
+    sign = np.where(np.arange(60) % 2 == 0, 1.0, -1.0)
+    ratio = np.ones(59) + rng.uniform(-0.05, 0.05, 59)
+    period_s = np.full(60, cell / 48_000.0)
+    args = (w, 48_000.0, idx, sign, ratio, period_s)
+    monkeypatch.setattr(_compiled, "_LOADED", False)
+    monkeypatch.setattr(density._mean_pulse, "_run", None)
+    monkeypatch.setattr(density._mean_pulse, "_work", -10 ** 15)
+    expected = density.clocking_pw50_cell(*args)                     # numpy path
+    density._mean_pulse.compile_now()
+    assert expected is not None and density.clocking_pw50_cell(*args) == expected

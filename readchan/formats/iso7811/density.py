@@ -36,6 +36,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from readchan._compiled import SAMPLE_JIT_AFTER, kernel
 from readchan.formats.iso7811.charset import TRACKS, TrackSpec
 from readchan.units import bit_cell_m
 
@@ -150,6 +151,12 @@ def clocking_pw50_cell(w: np.ndarray, rate_hz: float, idx: np.ndarray, sign: np.
     if j.size < 8:
         return None
     per = period_s[j] * rate_hz
+    if _mean_pulse.ready(j.size * PULSE_GRID.size):          # the same, compiled in one loop
+        acc, count = _mean_pulse(w, idx[j].astype(float), np.asarray(sign, float)[j], per, PULSE_GRID)
+        if count < 8:
+            return None
+        width = half_width(PULSE_GRID, acc / count)
+        return isolated_pw50_cell(width) if math.isfinite(width) else None
     pos = idx[j][:, None] + PULSE_GRID[None, :] * per[:, None]
     ok = (pos.min(axis=1) >= 0) & (pos.max(axis=1) <= w.size - 1)
     if ok.sum() < 8:
@@ -165,6 +172,43 @@ def clocking_pw50_cell(w: np.ndarray, rate_hz: float, idx: np.ndarray, sign: np.
     pulses = np.interp((pos - lo).ravel(), np.arange(hi - lo, dtype=float), w[lo:hi]).reshape(pos.shape) * sg[:, None]
     width = half_width(PULSE_GRID, pulses.mean(axis=0))
     return isolated_pw50_cell(width) if math.isfinite(width) else None
+
+
+@kernel(jit_after=4 * SAMPLE_JIT_AFTER)
+def _mean_pulse(w, centre, sign, per, grid):
+    """The sum over pulses of ``sign`` × ``w`` linearly interpolated at ``centre + grid·per``
+    (samples), for the pulses whose grid lies within ``w``, and their count: the numpy path of
+    :func:`clocking_pw50_cell` in one loop (``numpy.interp``'s arithmetic on unit-spaced
+    abscissae: slope·(p − j) + w[j], w[j] at whole p; rows summed in order, as
+    ``mean(axis=0)`` adds them)."""
+    m = grid.size
+    n = w.size
+    acc = np.zeros(m)
+    row = np.empty(m)
+    count = 0
+    for r in range(centre.size):
+        lo = np.inf
+        hi = -np.inf
+        for g in range(m):
+            p = centre[r] + grid[g] * per[r]
+            row[g] = p
+            lo = min(lo, p)
+            hi = max(hi, p)
+        if not (lo >= 0 and hi <= n - 1):
+            continue
+        for g in range(m):
+            p = row[g]
+            k = int(np.floor(p))
+            if k >= n - 1:
+                v = w[n - 1]
+            elif p == k:
+                v = w[k]
+            else:
+                v = (w[k + 1] - w[k]) * (p - k) + w[k]
+            v = v * sign[r]
+            acc[g] = v if count == 0 else acc[g] + v
+        count += 1
+    return acc, count
 
 
 def decide_track(fmt_name: str, n_chars: int, channel: int, n_channels: int, explicit: int | None = None, *,
