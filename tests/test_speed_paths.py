@@ -51,3 +51,16 @@ def test_pw50_on_the_front_ends_conditioning_equals_a_second_conditioning(monkey
     twice = decode_capture(cap, DecodeSettings())
     ev = lambda res: [(r.frame.text, r.track_evidence.pw50_cell) for c in res for r in c.reads]  # noqa: E731
     assert ev(once) == ev(twice) and len(ev(once)) >= 1
+
+
+def test_window_distances_to_the_start_sentinel_equal_the_window_matrix_count():
+    from numpy.lib.stride_tricks import sliding_window_view
+
+    from readchan.formats.iso7811.framing import _hamming_windows
+
+    rng = np.random.default_rng(5)
+    for n in (7, 8, 50, 333):
+        seq = rng.integers(0, 2, n).astype(np.uint8)
+        pattern = rng.integers(0, 2, 7).astype(np.uint8)
+        expected = np.count_nonzero(sliding_window_view(seq, 7) != pattern, axis=1)
+        assert np.array_equal(_hamming_windows(seq, pattern), expected)

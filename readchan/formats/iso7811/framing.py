@@ -35,7 +35,6 @@ from __future__ import annotations
 from typing import Iterable
 
 import numpy as np
-from numpy.lib.stride_tricks import sliding_window_view
 
 from readchan.errors import ParameterError
 from readchan.formats.iso7811.candidate import BORDER_CHARS, STRAY_ONES, Frame, build_candidate
@@ -179,7 +178,7 @@ def _start_positions(seq: np.ndarray, fmt: CharFormat) -> np.ndarray:
     if seq.size < width:
         return np.zeros(0, dtype=np.int64)
     pattern = fmt.char_bits(fmt.start_code)
-    distance = np.count_nonzero(sliding_window_view(seq, width) != pattern, axis=1)
+    distance = _hamming_windows(seq, pattern)
     exact = np.flatnonzero(distance == 0)
     ones = np.flatnonzero(seq)
     if exact.size == 0 and not can_correct(fmt):
@@ -191,6 +190,18 @@ def _start_positions(seq: np.ndarray, fmt: CharFormat) -> np.ndarray:
         lo, hi = max(0, first_one - width + 1), min(first_one, distance.size - 1)
         found.append(lo + np.flatnonzero(distance[lo:hi + 1] <= tolerance))
     return np.unique(np.concatenate(found).astype(np.int64))
+
+
+def _hamming_windows(seq: np.ndarray, pattern: np.ndarray) -> np.ndarray:
+    """Bits differing from ``pattern`` in every window of ``len(pattern)`` consecutive bits of
+    ``seq`` (int64): the count of ``sliding_window_view(seq, width) != pattern`` per window,
+    summed one pattern bit at a time (a few slices instead of a window matrix)."""
+    width = int(pattern.size)
+    n = seq.size - width + 1
+    distance = np.zeros(n, np.int64)
+    for k in range(width):
+        distance += seq[k:k + n] != pattern[k]
+    return distance
 
 
 def _frames_from(seq: np.ndarray, start: int, fmt: CharFormat, limit: int | None,
