@@ -278,14 +278,22 @@ def only_white_noise(x: np.ndarray, rate_hz: float) -> bool:
     nb = n // NOISE_BLOCK
     if nb < 50:
         return False
-    y = x - float(np.median(x[:: max(1, n // 100_000)]))
-    if not np.any(y):
+    centre = float(np.median(x[:: max(1, n // 100_000)]))
+    if float(x.min()) == centre == float(x.max()):
         return True                       # constant: an idle channel
-    r = np.sqrt(np.mean(y[: nb * NOISE_BLOCK].reshape(nb, NOISE_BLOCK) ** 2, axis=1))
+    # block RMS a few thousand blocks at a time: a channel with a swipe fails here, before any
+    # full-length array is made (the same values as from the whole y = x − centre)
+    r = np.empty(nb)
+    rows = 4096
+    for a in range(0, nb, rows):
+        b = min(nb, a + rows)
+        blk = x[a * NOISE_BLOCK:b * NOISE_BLOCK] - centre
+        r[a:b] = np.sqrt(np.mean(blk.reshape(b - a, NOISE_BLOCK) ** 2, axis=1))
     med = float(np.median(r))
     spread = (math.sqrt(2.0 * math.log(nb)) + 3.0) / math.sqrt(2.0 * NOISE_BLOCK)
     if not med > 0 or float(r.max()) > (1.0 + spread) * med:
         return False
+    y = x - centre
     m2 = float(np.mean(y * y))
     kurtosis = float(np.mean(y ** 4)) / (m2 * m2)
     if not 2.5 <= kurtosis <= 3.6:
