@@ -14,6 +14,10 @@ minimum and maximum between neighbouring peaks (``reduceat``) and groups the pea
 quarter of the samples.  The scan does the same in one pass over the samples and one over the
 peaks; it is compiled (:mod:`readchan._compiled`, ``jit_after=SAMPLE_JIT_AFTER``) only once
 enough samples have gone through the numpy path to pay for loading numba.
+
+The signal stays float64 (not float32, which would halve the memory read): which samples are
+peaks, and which peak of a lobe is the tallest, depend on comparisons that float32 rounding
+would resolve differently from the float64 the rest of the detector uses.
 """
 
 from __future__ import annotations

@@ -11,6 +11,10 @@ five full-length arrays and as many passes besides the two filter loops.  Here t
 read on the fly, the forward pass writes one array and the backward pass the result.  Compiled
 only once enough samples have gone through scipy's path (:mod:`readchan._compiled`,
 ``jit_after=SAMPLE_JIT_AFTER``), so short captures never load numba for it.
+
+float64 throughout, not float32: the refinement's 2nd-order high-pass has its poles near the
+unit circle, where float32's rounding recirculates in the recursion, and the result must equal
+scipy's float64 pass (the decoder's reads must not change; :mod:`readchan.frontend.condition`).
 """
 
 from __future__ import annotations
