@@ -69,3 +69,19 @@ def test_hum_fitted_at_a_given_frequency_keeps_that_frequency_and_finds_the_ampl
     fit = fit_hum(x, rate, np.ones(t.size, bool), freq_hz=50.0)
     assert fit is not None and fit.freq_hz == 50.0
     assert fit.amplitude == pytest.approx(0.05, rel=0.02)    # the sine's own amplitude
+
+
+def test_a_capture_with_hum_decoded_with_its_decisions_refits_the_hum_at_their_frequency():
+    from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
+    from readchan.synth.card import track_content
+
+    text = "%B9912345678901239^QUILL/ODESSA M^2912101000000000000?"      # invented card
+    spec = SynthSpec(tracks=(track_content(text, track=1),), speed=SpeedProfile(40.0, "swipe", 0.3),
+                     rate_hz=48_000.0, swipes=2, gap_s=0.25, lead_s=0.2,
+                     impairments=Impairments(snr_db=30.0, hum_hz=50.0, hum_level=0.05), seed=3)
+    x = synthesize(spec).samples[:, 0]
+    d = front_end_decisions(x, 48_000.0)
+    assert d.hum_hz is not None and abs(d.hum_hz - 50.0) < 0.6          # the hum synthesized
+    res = decode_channel(x, 48_000.0, decisions=d)
+    assert res.front_end.hum_hz == d.hum_hz and res.front_end.hum_fitted
+    assert [r.frame.text for r in res.reads if r.valid] == [text, text]
