@@ -96,7 +96,6 @@ def between_pulses_mask(n: int, rate_hz: float, tr: Transitions, *, guard: float
     return np.cumsum(edges[:-1]) == 0
 
 
-# Over 60 lines: one decision after another, each handing the next what it found (see the docstring).
 def conditioning_settings(settings: "HeadSettings") -> ConditionSettings:
     """The conditioning :func:`head_front_end` applies first: ``settings.condition``, with a fixed
     ``settings.notch`` (Hz) added to its notches."""
@@ -190,6 +189,7 @@ def _hum_quiet(n: int, rate_hz: float, tr: Transitions) -> tuple[np.ndarray, flo
     return between_pulses_mask(n, rate_hz, tr, guard=0.4), 0.1
 
 
+# Over 60 lines: one decision after another, each handing the next what it found (see the docstring).
 def head_front_end(x: np.ndarray, rate_hz: float, settings: "HeadSettings", channel: int = 0, *,
                    conditioned: Conditioned | None = None, clip: float | None = None,
                    decisions: FrontEndDecisions | None = None) -> tuple[Conditioned, Transitions, FrontEndRecord]:
