@@ -96,3 +96,18 @@ def demo_texts():
         2: ";9912345678901239=29121010000000000?",
         3: ";011234567890123445=7247241000000000000303000000000000000000?",
     }
+
+
+BENCH_TRACK2 = ";9912345678901239=29121010000000000?"     # invented card
+
+
+def write_track2_swipes(path, swipes: int = 6):
+    """Write ``swipes`` track 2 swipes 1.5 s apart (invented card, 30 cm/s ± 20 %, 32 dB SNR)
+    to ``path`` as a 16-bit WAV; returns the synthesis result."""
+    from readchan.io.capture import write_capture
+
+    spec = SynthSpec(tracks=(track_content(BENCH_TRACK2, track=2),), speed=SpeedProfile(30.0, "swipe", 0.2),
+                     swipes=swipes, gap_s=1.5, impairments=Impairments(snr_db=32.0), seed=11)
+    res = synthesize(spec)
+    write_capture(path, res.samples, res.rate_hz, kind="wav16")
+    return res

@@ -15,24 +15,18 @@ import numpy as np
 import pytest
 
 from readchan.errors import EXIT_BAD_INPUT, EXIT_VALID
-from readchan.io.capture import write_capture
-from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
-from readchan.synth.card import track_content
-from tests.conftest import run_cli
+
+from tests.conftest import run_cli, write_track2_swipes
 
 FIXTURES = Path(__file__).resolve().parents[1] / "fixtures"
 THREE = FIXTURES / "three-track-swipe.wav"
-TRACK2 = ";9912345678901239=29121010000000000?"       # invented card
 
 
 @pytest.fixture(scope="module")
 def swipes(tmp_path_factory) -> Path:
     """Six track 2 swipes 1.5 s apart, about 12 s."""
-    spec = SynthSpec(tracks=(track_content(TRACK2, track=2),), speed=SpeedProfile(30.0, "swipe", 0.2), swipes=6,
-                     gap_s=1.5, impairments=Impairments(snr_db=32.0), seed=11)
-    res = synthesize(spec)
     path = tmp_path_factory.mktemp("window") / "bench-swipes.wav"
-    write_capture(path, res.samples, res.rate_hz, kind="wav16")
+    write_track2_swipes(path)
     return path
 
 

@@ -16,23 +16,17 @@ from rich.console import Console
 
 from readchan.batch import BatchOptions, decode_source
 from readchan.cli.progress import ProgressBar
-from readchan.io.capture import write_capture
-from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
-from readchan.synth.card import track_content
-from tests.conftest import run_cli
 
-TRACK2 = ";9912345678901239=29121010000000000?"       # invented card
+from tests.conftest import run_cli, write_track2_swipes
+
 BAR = "━"                                             # the glyph rich draws its bars with
 
 
 @pytest.fixture(scope="module")
 def long_capture(tmp_path_factory):
     """Six track 2 swipes 1.5 s apart (about 12 s), decoded streamed once WHOLE_S is lowered."""
-    spec = SynthSpec(tracks=(track_content(TRACK2, track=2),), speed=SpeedProfile(30.0, "swipe", 0.2), swipes=6,
-                     gap_s=1.5, impairments=Impairments(snr_db=32.0), seed=11)
-    res = synthesize(spec)
     path = tmp_path_factory.mktemp("progress") / "rig-shift.wav"
-    write_capture(path, res.samples, res.rate_hz, kind="wav16")
+    write_track2_swipes(path)
     return path
 
 

@@ -9,19 +9,12 @@ import json
 from readchan.channel import DecodeSettings, decode_capture
 from readchan.io.capture import load_capture, write_capture
 from readchan.report.render import read_dict, reads_of
-from readchan.synth import Impairments, SpeedProfile, SynthSpec, synthesize
-from readchan.synth.card import track_content
-from tests.conftest import run_cli
+from tests.conftest import run_cli, write_track2_swipes
 
-TRACK2 = ";9912345678901239=29121010000000000?"
 
 
 def _capture(path, swipes=6):
-    spec = SynthSpec(tracks=(track_content(TRACK2, track=2),), speed=SpeedProfile(30.0, "swipe", 0.2), swipes=swipes,
-                     gap_s=1.5, impairments=Impairments(snr_db=32.0), seed=11)
-    res = synthesize(spec)
-    write_capture(path, res.samples, res.rate_hz, kind="wav16")
-    return res
+    return write_track2_swipes(path, swipes)
 
 
 def test_a_long_capture_is_decoded_span_by_span_with_the_whole_file_reads(tmp_path, monkeypatch, capsys):
