@@ -1,0 +1,392 @@
+"""Streaming decode of a long tape channel (linear timecode): the tape read of a capture that does
+not fit in memory, decoded from its file in pieces, equal to the whole-file decode.
+
+Input: the path of an audio capture, a channel index and :class:`readchan.channel.DecodeSettings`.
+Output: :class:`readchan.results.ChannelResult` holding the channel's one timecode read
+(:func:`timecode_channel`), the read itself (:func:`stream_ltc`), or the reads of every channel
+of a capture whose stretches held a tape read (:func:`tape_fallback_reads`, used by
+:mod:`readchan.stream`).
+
+How (:func:`stream_ltc`):
+
+1. One pass over the file in blocks (:func:`readchan.io.blocks.iter_blocks`) keeps the
+   capture-wide levels the whole-file decoder takes from strided subsamples of the channel:
+   the non-physical sample test's centre and level (:func:`readchan.io.capture.repair_outliers`),
+   the median, the 1–99 % span and signal kind of the biphase detector
+   (:func:`readchan.linecode.biphase.transitions`) and, for a raw head signal, its 99.9 %
+   pulse level.  Subsamples at the same absolute positions give the same values, so the levels
+   are those of the whole-file decode exactly.
+2. The channel is read in pieces of :data:`PIECE_S` that own consecutive spans of the capture,
+   each read with :data:`MARGIN_S` of the capture on either side.  Per piece: the transitions
+   with the capture's levels, at absolute sample positions (a crossing is the absolute index of
+   its sample plus the interpolated fraction, added once as the whole-file decoder adds it, so
+   its time is the same float), then the biphase parse (:func:`readchan.linecode.biphase.bits_from_transitions`).
+3. A piece keeps the bits that open in its own span (start time at or after its first sample,
+   before the next piece's first).  All the stages before are local — hysteresis state, the
+   running medians (31 intervals for the gaps, 9 anchors and 15 intervals for the period
+   trace), the Viterbi parse, whose surviving paths merge at every 0 bit — so at a cut far
+   from the piece's edges (2 s: 4000 bits at 1×) both pieces decide the same cells.  That is
+   checked at every cut: the bits each piece decoded over ±1 s around the cut must be equal
+   (value, start and end time); :attr:`StreamedBits.cut_mismatches` counts the cuts where
+   they were not (none in the tests).  A stretch of signal (a run) crossing a cut is one run.
+4. The frame-level interpretation (frames at sync words, rate inference, events, direction,
+   validity) runs once over the merged bits (:func:`readchan.formats.ltc.read.read_from_bits`),
+   as the whole-file decode runs it; ``auto`` signal kind tries the other detector with a
+   second streamed pass when the first read has no frame or damage events
+   (:func:`readchan.formats.ltc.read.decode_ltc`'s rule).
+
+Memory: a piece's samples and transitions (PIECE_S = 60 s: about 60 MB at 48 kHz), plus the
+read itself, whose per-bit record (:class:`readchan.linecode.biphase.TapeBits`, 42 bytes a bit)
+and per-frame objects cover the tape: see scripts/bench_stream_tape.py for the figures.
+Cassette data (Kansas City standard) is not streamed yet: a capture whose stretch holds one is
+decoded whole, as before.
+"""
+
+from __future__ import annotations
+
+import os
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.ndimage import maximum_filter1d, percentile_filter
+
+from readchan.formats.ltc.read import DAMAGE, FORMAT, LtcRead, read_from_bits
+from readchan.frontend.detect import _alternate, _lobe_peaks
+from readchan.io import capture as capture_mod
+from readchan.io.blocks import audio_info, iter_blocks, read_span
+from readchan.linecode.biphase import TapeBits, bits_from_transitions, signal_kind
+from readchan.results import ChannelResult, Read, tape_channel_result
+
+PIECE_S = 60.0
+"""Capture each piece owns, s."""
+MARGIN_S = 2.0
+"""Capture read on either side of a piece's own span, s: far more than the detector's hysteresis
+state, the running medians and the parse need to settle (a few dozen transitions), and more
+than a frame at 0.1× (0.4 s)."""
+CHECK_S = 1.0
+"""Around every cut, the bits both pieces decoded over ±CHECK_S must agree."""
+STAT_BLOCK = 1 << 18
+"""Frames read at a time for the levels' pass."""
+_TAPE_SUB = 400_000
+"""Subsample size of the biphase detector's median and span (:mod:`readchan.linecode.biphase`)."""
+_HEAD_SUB = 500_000
+"""Subsample size of the head detector's pulse level (:func:`readchan.frontend.detect.detect_head`)."""
+HEAD_THRESHOLD = 0.4
+"""Fraction of the local envelope a head pulse must exceed (``detect_head``'s default)."""
+
+
+@dataclass(frozen=True)
+class TapeLevels:
+    """The capture-wide levels of one channel (module docstring, step 1), in capture units.
+
+    ``centre``, ``limit``: a sample is non-physical when |x − centre| ≥ 1e150 or > ``limit``;
+    ``median``: the level the detector removes; ``kind``: ``line`` or ``head`` as decided on the
+    whole channel; ``mid``, ``hysteresis``: the line detector's mid level and hysteresis (after the
+    median is removed; ``hysteresis`` 0 when the span is empty); ``floor``: the head detector's
+    candidate floor (0 when the channel has no pulses)."""
+
+    centre: float
+    limit: float
+    median: float
+    kind: str
+    mid: float
+    hysteresis: float
+    floor: float
+
+
+@dataclass(frozen=True)
+class StreamedBits:
+    """The merged biphase bits of a streamed channel, and how many cuts the pieces disagreed at."""
+
+    bits: TapeBits
+    cut_mismatches: int
+    pieces: int
+
+
+def _strided(blk_start: int, samples: np.ndarray, step: int) -> np.ndarray:
+    """The samples of a block at absolute positions 0, step, 2·step, ..."""
+    return samples[(-blk_start) % step::step]
+
+
+def _wild(x: np.ndarray, centre: float, limit: float) -> np.ndarray:
+    dev = np.abs(x - centre)
+    return (dev >= capture_mod._OUTLIER_ABSOLUTE) | (dev > limit)
+
+
+def _repair(x: np.ndarray, centre: float, limit: float) -> tuple[np.ndarray, int]:
+    """``x`` with its non-physical samples interpolated from their neighbours in ``x``
+    (:func:`readchan.io.capture.repair_outliers`' rule with the channel's levels), and their count."""
+    wild = _wild(x, centre, limit)
+    bad = np.flatnonzero(wild)
+    if bad.size == 0:
+        return x, 0
+    good = np.flatnonzero(~wild)
+    y = x.copy()
+    y[bad] = np.interp(bad, good, x[good]) if good.size else centre
+    return y, int(bad.size)
+
+
+def channel_levels(path: str, channel: int, kind: str = "auto") -> TapeLevels:
+    """The :class:`TapeLevels` of ``channel`` of the file at ``path`` (one pass in blocks, and a
+    second only when a non-physical sample falls on a subsample position).  ``kind``: ``auto``,
+    ``line`` or ``head``."""
+    n = audio_info(path).frames
+    s_out = max(1, n // capture_mod.OUTLIER_SUBSAMPLE)
+    s_tape, s_head = max(1, n // _TAPE_SUB), max(1, n // _HEAD_SUB)
+    parts: dict[int, list[np.ndarray]] = {s_out: [], s_tape: [], s_head: []}
+    for blk in iter_blocks(path, STAT_BLOCK):
+        col = blk.samples[:, channel]
+        for s, acc in parts.items():
+            acc.append(_strided(blk.start, col, s).copy())
+    sub = {s: np.concatenate(v) for s, v in parts.items()}
+    centre = float(np.median(sub[s_out]))
+    dev = np.abs(sub[s_out] - centre)
+    sane = dev[dev < capture_mod._OUTLIER_ABSOLUTE]
+    level = float(np.percentile(sane, capture_mod.OUTLIER_LEVEL_PERCENTILE)) if sane.size else 0.0
+    limit = capture_mod.OUTLIER_RATIO * level if level > 0 else np.inf
+    if any(_wild(v, centre, limit).any() for v in sub.values()):
+        # a repaired sample on a subsample position: take the subsamples of the repaired channel
+        parts = {s: [] for s in sub}
+        margin = 1 << 12
+        for blk in iter_blocks(path, STAT_BLOCK + margin, margin):
+            y, _ = _repair(blk.samples[:, channel], centre, limit)
+            new_start = blk.start + blk.overlap
+            for s, acc in parts.items():
+                acc.append(_strided(new_start, y[blk.overlap:], s).copy())
+        sub = {s: np.concatenate(v) for s, v in parts.items()}
+    med = float(np.median(sub[s_tape]))
+    xt = sub[s_tape] - med
+    used = signal_kind(xt) if kind == "auto" else kind
+    lo, hi = np.percentile(xt, [1.0, 99.0])
+    mid, hyst = (0.5 * (lo + hi), 0.2 * (hi - lo)) if hi > lo else (0.0, 0.0)
+    big = float(np.percentile(np.abs(sub[s_head] - med), 99.9))
+    floor = min(max(0.0, 0.02 * big, 0.0), 0.3 * big) if big > 0 else 0.0
+    return TapeLevels(centre, float(limit), med, used, float(mid), float(hyst), float(floor))
+
+
+def line_crossings(y: np.ndarray, h: float, offset: int) -> np.ndarray:
+    """:func:`readchan.frontend.crossings.hysteresis_crossings` of ``y`` whose first sample is
+    sample ``offset`` of the capture, in absolute samples: the absolute index of the sample
+    before the crossing plus the interpolated fraction, one addition, as the whole-file
+    decoder forms it (a piece-relative position shifted afterwards would round twice)."""
+    s = np.where(y > h, 1, np.where(y < -h, -1, 0)).astype(np.int8)
+    pos = np.where(s != 0, np.arange(s.size), 0)
+    np.maximum.accumulate(pos, out=pos)
+    state = s[pos]
+    change = np.flatnonzero((state[1:] != state[:-1]) & (state[:-1] != 0)) + 1
+    zc = np.flatnonzero(np.signbit(y[1:]) != np.signbit(y[:-1])) + 1
+    if change.size == 0 or zc.size == 0:
+        return np.zeros(0)
+    j = zc[np.clip(np.searchsorted(zc, change, side="right") - 1, 0, zc.size - 1)]
+    a, b = y[j - 1], y[j]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.where(a != b, a / (a - b), 0.0)
+    return np.unique((j - 1 + offset) + frac)
+
+
+def head_peaks(x: np.ndarray, floor: float, offset: int) -> np.ndarray:
+    """Pulse-peak positions (absolute samples) of a raw head signal ``x`` (median removed) whose
+    first sample is sample ``offset``: :func:`readchan.frontend.detect.detect_head` with the
+    channel's candidate floor, its parabolic timing formed at the absolute index."""
+    if not floor > 0:
+        return np.zeros(0)
+    idx, sgn = _lobe_peaks(x, 0.5 * floor, floor)
+    if idx.size == 0:
+        return np.zeros(0)
+    amp = np.abs(x[idx])
+    env = percentile_filter(maximum_filter1d(amp, size=min(5, idx.size), mode="nearest"), 75,
+                            size=min(15, idx.size), mode="nearest")
+    idx, _, _ = _alternate(x, idx, sgn, amp, env, amp >= HEAD_THRESHOLD * env, HEAD_THRESHOLD)
+    if idx.size == 0:
+        return np.zeros(0)
+    ic = np.clip(idx, 1, x.size - 2)
+    ym, y0, yp = x[ic - 1], x[ic], x[ic + 1]
+    den = ym - 2 * y0 + yp
+    with np.errstate(divide="ignore", invalid="ignore"):
+        d = np.where(np.abs(den) > 1e-300, 0.5 * (ym - yp) / den, 0.0)
+    return (ic + offset) + np.clip(d, -0.5, 0.5)
+
+
+def piece_transitions(x: np.ndarray, offset: int, rate_hz: float, lv: TapeLevels, kind: str) -> np.ndarray:
+    """Transition times (s, capture time) of the samples ``x`` starting at sample ``offset``."""
+    y = x - lv.median
+    if kind == "line":
+        pos = line_crossings(y - lv.mid, lv.hysteresis, offset) if lv.hysteresis > 0 else np.zeros(0)
+    else:
+        pos = head_peaks(y, lv.floor, offset)
+    return pos / rate_hz
+
+
+_FIELDS = ("bits", "start_s", "end_s", "period_s", "margin", "flags")
+
+
+class _Merger:
+    """Bits of consecutive pieces joined at the cuts into one :class:`TapeBits` (step 3)."""
+
+    def __init__(self, kind: str) -> None:
+        self.kind = kind
+        self.cols: dict[str, list[np.ndarray]] = {f: [] for f in _FIELDS}
+        self.run: list[np.ndarray] = []
+        self.runs: list[list[float]] = []
+        self.n_transitions = 0
+        self.mismatches = 0
+        self.prev: TapeBits | None = None            # the previous piece's bits
+        self.prev_open = False                       # its last kept run continues past the cut
+
+    def add(self, tb: TapeBits, times_s: np.ndarray, lo_s: float, hi_s: float) -> None:
+        """Keep ``tb``'s bits that start in [lo_s, hi_s) and its transitions there."""
+        self.n_transitions += int(np.count_nonzero((times_s >= lo_s) & (times_s < hi_s)))
+        if self.prev is not None:
+            self._check(self.prev, tb, lo_s)
+        keep = (tb.start_s >= lo_s) & (tb.start_s < hi_s)
+        local = tb.run[keep]
+        if local.size:
+            first_run = int(local[0])
+            # the run crosses the cut in both pieces: one run
+            joined = self.prev_open and bool(np.any((tb.run == first_run) & (tb.start_s < lo_s)))
+            ids = np.unique(local)
+            base = len(self.runs) - (1 if joined else 0)
+            mapping = {int(r): base + k for k, r in enumerate(ids)}
+            for r in ids:
+                g = mapping[int(r)]
+                if g == len(self.runs):
+                    self.runs.append([float(tb.runs_s[r, 0]), float(tb.runs_s[r, 1])])
+                else:
+                    self.runs[g][1] = float(tb.runs_s[r, 1])
+            lut = np.zeros(int(tb.run.max()) + 1 if tb.run.size else 1, np.int64)
+            lut[ids] = [mapping[int(r)] for r in ids]
+            self.run.append(lut[local])
+            for f in _FIELDS:
+                self.cols[f].append(getattr(tb, f)[keep])
+            last_run = int(local[-1])
+            self.prev_open = bool(np.any((tb.run == last_run) & (tb.start_s >= hi_s)))
+        else:
+            self.prev_open = False
+        self.prev = tb
+
+    def _check(self, a: TapeBits, b: TapeBits, cut_s: float) -> None:
+        wa = (a.start_s >= cut_s - CHECK_S) & (a.start_s < cut_s + CHECK_S)
+        wb = (b.start_s >= cut_s - CHECK_S) & (b.start_s < cut_s + CHECK_S)
+        same = (np.count_nonzero(wa) == np.count_nonzero(wb)
+                and all(np.array_equal(getattr(a, f)[wa], getattr(b, f)[wb]) for f in _FIELDS))
+        self.mismatches += 0 if same else 1
+
+    def result(self) -> TapeBits:
+        cat = (lambda xs, dt: np.concatenate(xs).astype(dt, copy=False) if xs else np.zeros(0, dt))
+        c = self.cols
+        return TapeBits(cat(c["bits"], np.uint8), cat(c["start_s"], float), cat(c["end_s"], float),
+                        cat(c["period_s"], float), cat(c["margin"], float), cat(c["flags"], np.uint8),
+                        cat(self.run, np.int64), np.asarray(self.runs, float).reshape(-1, 2), self.kind,
+                        int(self.n_transitions))
+
+
+def stream_bits(path: str | os.PathLike, channel: int, lv: TapeLevels, kind: str, *,
+                piece_s: float = PIECE_S, margin_s: float = MARGIN_S, progress=None) -> StreamedBits:
+    """The biphase bits of ``channel`` decoded piece by piece with detector ``kind`` (``line``
+    or ``head``) and the channel's levels ``lv`` (module docstring, steps 2–3).  ``progress``,
+    when given, is called with the fraction of the channel done."""
+    p = os.fspath(path)
+    info = audio_info(p)
+    n, rate = info.frames, info.rate_hz
+    piece, margin = max(1, int(round(piece_s * rate))), int(round(margin_s * rate))
+    if margin < int(round(CHECK_S * rate)) + 1:
+        raise ValueError(f"margin_s must exceed {CHECK_S} s, was {margin_s!r}")
+    merger = _Merger(kind)
+    cuts = list(range(0, n, piece)) + [n]
+    for k, (own_lo, own_hi) in enumerate(zip(cuts[:-1], cuts[1:])):
+        lo, hi = max(0, own_lo - margin), min(n, own_hi + margin)
+        x, _ = _repair(np.ascontiguousarray(read_span(p, lo, hi)[:, channel]), lv.centre, lv.limit)
+        times = piece_transitions(x, lo, rate, lv, kind)
+        del x
+        tb = bits_from_transitions(times, kind=kind)
+        lo_s = -np.inf if own_lo == 0 else own_lo / rate
+        hi_s = np.inf if own_hi == n else own_hi / rate
+        merger.add(tb, times, lo_s, hi_s)
+        if progress is not None:
+            progress((k + 1) / (len(cuts) - 1))
+    return StreamedBits(merger.result(), merger.mismatches, len(cuts) - 1)
+
+
+def stream_ltc(path: str | os.PathLike, channel: int = 0, *, kind: str = "auto", piece_s: float = PIECE_S,
+               margin_s: float = MARGIN_S, min_margin: float = 0.1) -> tuple[LtcRead, int]:
+    """The timecode read of ``channel`` of the file at ``path``, streamed (module docstring), and
+    the number of cuts where the pieces disagreed (0 when the read is the whole-file one).
+    ``kind``: ``auto``, ``line`` or ``head`` (the biphase detector's names)."""
+    p = os.fspath(path)
+    lv = channel_levels(p, channel, kind)
+    sb = stream_bits(p, channel, lv, lv.kind, piece_s=piece_s, margin_s=margin_s)
+    read = read_from_bits(sb.bits, channel=channel, min_margin=min_margin)
+    mismatches = sb.cut_mismatches
+    if kind == "auto" and (not read.frames or any(e.kind in DAMAGE for e in read.events)):
+        other = "head" if lv.kind == "line" else "line"
+        sb2 = stream_bits(p, channel, lv, other, piece_s=piece_s, margin_s=margin_s)
+        alt = read_from_bits(sb2.bits, channel=channel, min_margin=min_margin)
+        if (len(alt.frames), -len(alt.events)) > (len(read.frames), -len(read.events)):
+            return alt, sb2.cut_mismatches
+    return read, mismatches
+
+
+_LTC_KINDS = {"auto": "auto", "head": "head", "logic": "line"}
+
+
+def timecode_channel(path: str | os.PathLike, channel: int, settings, *, piece_s: float = PIECE_S) -> ChannelResult:
+    """The timecode family's channel result (:func:`readchan.formats.ltc.channel.decode_ltc_family`)
+    for ``channel`` of the file at ``path``, streamed."""
+    p = os.fspath(path)
+    info = audio_info(p)
+    read, _ = stream_ltc(p, channel, kind=_LTC_KINDS[settings.kind.value], piece_s=piece_s)
+    r = Read(p, channel, FORMAT, read, bits=read.bits) if read.frames else None
+    return tape_channel_result(channel, info.rate_hz, read.signal_kind, "timecode", r)
+
+
+def _channel_family(path: str, channel: int, n_channels: int, n: int, rate_hz: float, settings) -> str:
+    """The family the first active stretch of ``channel`` decodes as (:mod:`readchan.stream`'s
+    stretches), ``card`` when it has none."""
+    from readchan import stream
+    from readchan.channel import decode_channel
+
+    gate = stream._gate(path, [channel], rate_hz, n, stream._no_progress)[0]
+    for span in gate.spans():
+        own_lo, own_hi = stream._pieces(span, gate.energies(), gate.block, rate_hz)[0]
+        settle = int(stream.SETTLE_S * rate_hz)
+        x = np.ascontiguousarray(read_span(path, max(0, own_lo - settle), min(n, own_hi + settle))[:, channel])
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            return decode_channel(x, rate_hz, settings, channel=channel, n_channels=n_channels, source=path).family
+    return "card"
+
+
+def tape_fallback_reads(path: str | os.PathLike, settings, channels: list[int]):
+    """The reads of ``channels`` of a long capture one of whose stretches held a tape read
+    (:mod:`readchan.stream`): a timecode channel streamed (:func:`timecode_channel`); a card
+    channel by :mod:`readchan.stream`'s stretches; any other channel (cassette data, or a
+    timecode channel whose streamed read no family claims) decoded whole, as before."""
+    from readchan import stream
+    from readchan.channel import decode_capture
+    from readchan.formats.ltc.channel import ltc_claims
+    from readchan.io.capture import load_capture
+
+    p = os.fspath(path)
+    info = audio_info(p)
+    whole = []
+    for c in channels:
+        fam = _channel_family(p, c, info.channels, info.frames, info.rate_hz, settings)
+        if fam == "timecode":
+            res = timecode_channel(p, c, settings)
+            if ltc_claims(res):
+                yield from res.reads
+                continue
+        elif fam == "card":
+            try:
+                reads = list(stream._stretch_reads(p, [c], info.channels, info.frames, info.rate_hz, settings,
+                                                   stream._no_progress))
+            except stream._TapeRead:
+                reads = None                # a later stretch holds a tape read: decoded whole
+            if reads is not None:
+                yield from reads
+                continue
+        whole.append(c)
+    if whole:
+        for res in decode_capture(load_capture(p), settings, whole):
+            yield from res.reads
