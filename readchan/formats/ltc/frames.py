@@ -25,7 +25,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from numpy.lib.stride_tricks import sliding_window_view
 
 from readchan.linecode.biphase import TapeBits
 from readchan.formats.ltc.word import (BCD_FIELDS, SYNC_REVERSED, SYNC_WORD, USER_GROUP_BITS, WORD_BITS,
@@ -70,10 +69,16 @@ class FrameCandidate:
 
 
 def _matches(bits: np.ndarray, pattern: np.ndarray) -> np.ndarray:
-    if bits.size < pattern.size:
+    """Indices where ``pattern`` starts in ``bits``: one comparison of a shifted view per
+    pattern bit (two booleans a bit of memory, where a window view compared whole takes one a
+    bit per pattern bit)."""
+    m = bits.size - pattern.size + 1
+    if m <= 0:
         return np.zeros(0, np.int64)
-    win = sliding_window_view(bits, pattern.size)
-    return np.flatnonzero((win == pattern).all(axis=1))
+    hit = bits[:m] == pattern[0]
+    for j in range(1, pattern.size):
+        hit &= bits[j:j + m] == pattern[j]
+    return np.flatnonzero(hit)
 
 
 def field_values(words: np.ndarray) -> dict[str, np.ndarray]:
@@ -119,6 +124,23 @@ def find_frames(tb: TapeBits, *, min_margin: float = 0.1) -> list[FrameCandidate
         return []
     order = np.argsort(first, kind="stable")
     first, is_rev = first[order], is_rev[order]
+    out: list[FrameCandidate] = []
+    taken_until = -1
+    for a in range(0, first.size, CHUNK):
+        taken_until = _checked(tb, first[a:a + CHUNK], is_rev[a:a + CHUNK], min_margin, taken_until, out)
+    return out
+
+
+CHUNK = 8192
+"""Candidates checked at a time (their cells: 8192 × 80, a few MB), so a two-hour tape's
+checks need no more memory than a minute's."""
+
+
+def _checked(tb: TapeBits, first: np.ndarray, is_rev: np.ndarray, min_margin: float, taken_until: int,
+             out: list[FrameCandidate]) -> int:
+    """Append the candidates opening at bits ``first`` (sorted) to ``out`` with their checks;
+    returns the bit up to which a passing frame has taken the bits."""
+    bits = tb.bits
     cells = first[:, None] + np.arange(WORD_BITS)[None, :]
     words = bits[cells]
     words[is_rev] = words[is_rev, ::-1]
@@ -127,8 +149,6 @@ def find_frames(tb: TapeBits, *, min_margin: float = 0.1) -> list[FrameCandidate
              & (margin >= min_margin))
     even = (WORD_BITS - words.sum(axis=1, dtype=np.int64)) % 2 == 0
     bcd = _bcd_ok(field_values(words))
-    out: list[FrameCandidate] = []
-    taken_until = -1
     for k in range(first.size):
         c = FrameCandidate(int(first[k]), REVERSE if is_rev[k] else FORWARD, words[k],
                            float(tb.start_s[first[k]]), float(tb.end_s[first[k] + WORD_BITS - 1]),
@@ -138,4 +158,4 @@ def find_frames(tb: TapeBits, *, min_margin: float = 0.1) -> list[FrameCandidate
                 continue
             taken_until = c.first_bit + WORD_BITS
         out.append(c)
-    return out
+    return taken_until
