@@ -238,9 +238,11 @@ def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSetting
             seen.add((r.channel, round(r.start_s, 6)))
             yield r
     except _TapeRead:
-        # a tape read spans the tape: decoded whole, its reads after those already given
-        for res in decode_capture(load_capture(p), settings, chans):
-            yield from (r for r in res.reads if (r.channel, round(r.start_s, 6)) not in seen)
+        # a tape read spans the tape: a timecode channel streamed as tape (readchan.stream_tape),
+        # other channels as before; its reads after those already given
+        from readchan.stream_tape import tape_fallback_reads
+
+        yield from (r for r in tape_fallback_reads(p, settings, chans) if (r.channel, round(r.start_s, 6)) not in seen)
     progress(1.0)
 
 

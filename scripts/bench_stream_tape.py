@@ -32,9 +32,12 @@ FPS = 25.0
 
 
 def write_ltc(path: Path, minutes: float, *, start: str = "10:00:00:00", piece_s: float = 60.0,
-              rate_fps: float = FPS, direction: str = "forward", noise_db: float | None = None) -> None:
+              rate_fps: float = FPS, direction: str = "forward", noise_db: float | None = None,
+              lead_s: float = 0.0) -> None:
     """A ``minutes``-long line-level timecode capture written to ``path`` piece by piece: each
-    piece ``piece_s`` of tape (a whole number of frames), labels continuing."""
+    piece ``piece_s`` of tape (a whole number of frames), labels continuing; ``lead_s`` of
+    digital silence before it."""
+    import numpy as np
     import soundfile as sf
 
     from readchan.formats.ltc.word import Label, count_to_label, label_to_count, labels_per_second
@@ -50,6 +53,8 @@ def write_ltc(path: Path, minutes: float, *, start: str = "10:00:00:00", piece_s
     done = 0.0
     play = Playback(snr_db=noise_db) if noise_db is not None else Playback()
     with sf.SoundFile(str(path), "w", samplerate=int(RATE_HZ), channels=1, subtype="PCM_16") as out:
+        if lead_s > 0:
+            out.write(np.zeros(int(round(lead_s * RATE_HZ))))
         k = 0
         while done < total_s - 1e-9:
             dur = min(piece_s, total_s - done)
