@@ -34,8 +34,8 @@ How (:func:`stream_ltc`):
 Memory: a piece's samples and transitions (PIECE_S = 60 s: about 60 MB at 48 kHz), plus the
 read itself, whose per-bit record (:class:`readchan.linecode.biphase.TapeBits`, 42 bytes a bit)
 and per-frame objects cover the tape: see scripts/bench_stream_tape.py for the figures.
-Cassette data (Kansas City standard) is not streamed yet: a capture whose stretch holds one is
-decoded whole, as before.
+Cassette data (Kansas City standard) streams by :mod:`readchan.stream_kcs` (equal to rounding,
+not bit for bit: see there).
 """
 
 from __future__ import annotations
@@ -253,9 +253,10 @@ def _channel_family(path: str, channel: int, n_channels: int, n: int, rate_hz: f
 
 def tape_fallback_reads(path: str | os.PathLike, settings, channels: list[int]):
     """The reads of ``channels`` of a long capture one of whose stretches held a tape read
-    (:mod:`readchan.stream`): a timecode channel streamed (:func:`timecode_channel`); a card
-    channel by :mod:`readchan.stream`'s stretches; any other channel (cassette data, or a
-    timecode channel whose streamed read no family claims) decoded whole, as before."""
+    (:mod:`readchan.stream`): a timecode channel streamed (:func:`timecode_channel`), a
+    cassette channel streamed (:func:`readchan.stream_kcs.cassette_channel`); a card channel by
+    :mod:`readchan.stream`'s stretches; a channel whose streamed read its family does not claim
+    decoded whole, as before."""
     from readchan import stream
     from readchan.channel import decode_capture
     from readchan.formats.ltc.channel import ltc_claims
@@ -269,6 +270,14 @@ def tape_fallback_reads(path: str | os.PathLike, settings, channels: list[int]):
         if fam == "timecode":
             res = timecode_channel(p, c, settings)
             if ltc_claims(res):
+                yield from res.reads
+                continue
+        elif fam == "cassette":
+            from readchan.formats.kcs.channel import kcs_claims
+            from readchan.stream_kcs import cassette_channel
+
+            res = cassette_channel(p, c)
+            if kcs_claims(res):
                 yield from res.reads
                 continue
         elif fam == "card":

@@ -1,8 +1,11 @@
-"""Streamed tape decode (:mod:`readchan.stream_tape`): a timecode channel decoded from its file
-in pieces gives exactly the read a whole-file decode gives, wherever the pieces are cut.
+"""Streamed tape decode (:mod:`readchan.stream_tape`, :mod:`readchan.stream_kcs`): a timecode
+channel decoded from its file in pieces gives exactly the read a whole-file decode gives,
+wherever the pieces are cut; a cassette channel gives the same bytes, with times and margins
+equal to rounding.
 
-Reference: :func:`readchan.formats.ltc.read.decode_ltc` on the whole capture (its answers are
-pinned by tests/test_golden.py), the synthesizer's frames, and the ``timecode`` package (PyPI)
+Reference: :func:`readchan.formats.ltc.read.decode_ltc` and
+:func:`readchan.formats.kcs.read.decode_kcs` on the whole capture (their answers are pinned by
+tests/test_golden.py), the synthesizers' frames and bytes, and the ``timecode`` package (PyPI)
 for the label sequence."""
 
 from __future__ import annotations
@@ -17,11 +20,14 @@ from timecode import Timecode
 
 from readchan import stream
 from readchan.channel import decode_capture
+from readchan.formats.kcs.read import decode_kcs
 from readchan.formats.ltc.read import decode_ltc
 from readchan.io.capture import load_capture
+from readchan.stream_kcs import stream_kcs
 from readchan.stream_tape import stream_ltc
+from readchan.synth.kcs import KcsSpec, synthesize_kcs
 from readchan.synth.ltc import LtcSpec, synthesize_ltc
-from readchan.synth.playback import PlaySpeed
+from readchan.synth.playback import Playback, PlaySpeed
 
 ROOT = Path(__file__).resolve().parents[1]
 _spec = importlib.util.spec_from_file_location("bench_stream_tape", ROOT / "scripts" / "bench_stream_tape.py")
@@ -147,3 +153,79 @@ def test_a_long_capture_through_iter_reads_gives_the_whole_file_timecode_read(tm
                    "capture that is signal throughout, so readchan.stream never reaches a tape stretch")
 def test_a_capture_that_is_timecode_throughout_is_read_through_iter_reads(forty_seconds):
     assert [r.format for r in stream.iter_reads(forty_seconds, whole_s=10)] == ["ltc"]
+
+
+# --- cassette data (Kansas City standard): streamed bytes equal the whole-file read; times and
+# margins agree to rounding (running sums: readchan.stream_kcs's module docstring)
+
+KCS_TIME_TOL_S = 1e-9
+"""Byte times agree to far below a sample (20 µs at 48 kHz): rounding of the running sums."""
+KCS_MARGIN_TOL = 1e-8
+
+
+def _kcs_file(path: Path, baud: int, n_bytes: int, seed: int, *, idle=0.0, quiet_s: float = 0.5,
+              blocks: int = 1) -> bytes:
+    """A cassette capture of ``blocks`` blocks of random bytes (invented data), each with its
+    leader, 16-bit WAV; returns the bytes recorded."""
+    rng = np.random.default_rng(seed)
+    parts, data = [], b""
+    for k in range(blocks):
+        d = bytes(rng.integers(0, 256, n_bytes, dtype=np.uint8))
+        s = synthesize_kcs(KcsSpec(data=d, baud=baud, idle_bits=idle, quiet_s=quiet_s, seed=seed + k,
+                                   speed=PlaySpeed.constant(1.03, wow_depth=0.01), playback=Playback(snr_db=30)))
+        parts.append(s.samples)
+        data += d
+    x = np.concatenate(parts)
+    _write(path, x / (1.1 * np.max(np.abs(x))))
+    return data
+
+
+def _assert_same_kcs(s, w) -> None:
+    assert (s.data, s.baud, s.framing_errors, s.valid, s.dropouts == w.dropouts) == (w.data, w.baud, w.framing_errors,
+                                                                                 w.valid, True)
+    assert np.max(np.abs(s.byte_times_s - w.byte_times_s), initial=0.0) < KCS_TIME_TOL_S
+    assert np.max(np.abs(s.margins - w.margins), initial=0.0) < KCS_MARGIN_TOL
+    assert abs(s.speed - w.speed) < 1e-9 and s.leader_s == pytest.approx(w.leader_s, abs=1e-9)
+    assert abs(s.start_s - w.start_s) < KCS_TIME_TOL_S and abs(s.end_s - w.end_s) < KCS_TIME_TOL_S
+
+
+def _whole_kcs(path: Path):
+    cap = load_capture(path)
+    return decode_kcs(cap.channel(0), cap.rate_hz)
+
+
+@pytest.mark.parametrize("baud, n_bytes, idle", [(300, 600, 0.0), (1200, 2000, (0.0, 1.5, 0.25))])
+@pytest.mark.parametrize("piece_s", [3.0, 7.0])
+def test_streamed_cassette_bytes_equal_the_whole_file_read(tmp_path, baud, n_bytes, idle, piece_s):
+    path = tmp_path / "kcs.wav"
+    data = _kcs_file(path, baud, n_bytes, seed=11, idle=idle)
+    whole = _whole_kcs(path)
+    assert whole.data == data                       # the synthesizer's bytes: the reference
+    _assert_same_kcs(stream_kcs(path, piece_s=piece_s), whole)
+
+
+@pytest.mark.parametrize("into_byte_s", [0.0, 0.0071, 0.0183, 0.0312])
+def test_a_byte_across_a_cut_is_read_wherever_the_cut_falls_in_it(tmp_path, into_byte_s):
+    # 300 baud: a byte is 36.7 ms; cuts at 2.5 s + into_byte_s fall anywhere within one
+    path = tmp_path / "kcs.wav"
+    data = _kcs_file(path, 300, 200, seed=12)
+    whole = _whole_kcs(path)
+    assert whole.data == data
+    _assert_same_kcs(stream_kcs(path, piece_s=2.5 + into_byte_s), whole)
+
+
+def test_cassette_blocks_each_behind_a_leader_stream_to_the_whole_file_read(tmp_path):
+    path = tmp_path / "blocks.wav"
+    data = _kcs_file(path, 1200, 300, seed=13, blocks=3, quiet_s=1.0)
+    whole = _whole_kcs(path)
+    assert whole.data == data
+    _assert_same_kcs(stream_kcs(path, piece_s=2.0), whole)
+
+
+def test_a_long_cassette_capture_through_iter_reads_gives_the_whole_file_read(tmp_path):
+    path = tmp_path / "kcs_long.wav"
+    _kcs_file(path, 300, 400, seed=14, quiet_s=4.0)     # 8 of 23 s quiet: the gate finds the span
+    streamed = list(stream.iter_reads(path, whole_s=10))
+    whole = [r for res in decode_capture(load_capture(path)) for r in res.reads]
+    assert [r.format for r in streamed] == [r.format for r in whole] == ["kcs"]
+    _assert_same_kcs(streamed[0].payload, whole[0].payload)

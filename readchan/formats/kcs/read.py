@@ -237,78 +237,33 @@ def _leader_s(track: ToneTrack, t: float, min_s: float) -> float:
 
 def _uart(track: ToneTrack, baud: int, min_leader_s: float, max_dropout_s: float):
     """Bytes, start times, framing errors, margins, speeds, the leader and the dropouts inside
-    blocks (module docstring)."""
-    out, times, errors, margins, speeds = [], [], [], [], []
-    dropouts: list[tuple[float, float]] = []
-    onsets = track.onsets_s
-    centres = (np.arange(BYTE_BITS) + 0.5)[:, None]
-    half = 0.3
-    k = 0
-    in_block = False
-    prev_end = -np.inf
-    leader = 0.0
-    while k < onsets.size:
-        t = float(onsets[k])
-        sp = track.speed_at(t)
-        bit_s = 1.0 / (baud * sp)
-        if in_block:
-            _, cov = track.fractions(np.array([prev_end]), np.array([max(t, prev_end + 1e-9)]))
-            in_block = cov[0] >= 0.8
-        lost = None
-        if not in_block:
-            # a leader opens a block; after a short loss of tone inside one, 1.5 bits of idle
-            # mark resume it and the loss is recorded as a dropout
-            idle = _leader_s(track, t - EDGE_SETBACK * bit_s, min(min_leader_s, 1.5 * bit_s))
-            if idle < min_leader_s:
-                if not (out and t - prev_end <= max_dropout_s and idle >= 1.5 * bit_s):
-                    k += 1
-                    continue
-                lost = (float(prev_end), t - EDGE_SETBACK * bit_s - idle)
-        a = t + (centres[:, 0] - half) * bit_s
-        b = t + (centres[:, 0] + half) * bit_s
-        frac, cov = track.fractions(a, b)
-        if frac[0] >= 0.5 or cov[0] < 0.9 or np.count_nonzero(cov >= 0.5) < MIN_TONE_CELLS:
-            k += 1                           # no clear start bit, or too little tone for a byte
-            continue
-        before, before_cov = track.fractions(np.array([t - (1 + EDGE_SETBACK) * bit_s]),
-                                             np.array([t - EDGE_SETBACK * bit_s]))
-        if before[0] < MIN_MARK_BEFORE or before_cov[0] < 0.9:
-            k += 1                           # the line was not at mark before it: no start bit
-            continue
-        if not out:
-            leader = _leader_s(track, t - EDGE_SETBACK * bit_s, min_leader_s)
-        if lost is not None:
-            dropouts.append(lost)
-        bits = (frac > 0.5).astype(np.int64)
-        out.append(int(bits[1:9] @ (1 << np.arange(8))))
-        times.append(t)
-        speeds.append(sp)
-        margins.append(float(np.min(np.abs(2 * frac - 1))))
-        bad = bits[9] == 0 or bits[10] == 0 or bool(np.any(cov < 0.5))
-        if bad:
-            errors.append(len(out) - 1)
-            next_t = t + 9.5 * bit_s
-        else:
-            next_t = t + 10.5 * bit_s
-        in_block = True
-        prev_end = next_t
-        k = int(np.searchsorted(onsets, next_t))
-    return out, times, errors, margins, speeds, leader, dropouts
+    blocks (module docstring), the whole track read at once."""
+    from readchan.formats.kcs.uart import Uart
+
+    u = Uart(baud, min_leader_s, max_dropout_s)
+    u.feed(track)
+    return u.result()
 
 
-def _quarter_margin(track: ToneTrack, data: list[int], times: list[float], speeds: list[float],
-                    baud: int) -> float:
-    """Mean over bytes of the smallest signed margin (2·mark fraction − 1, sign of the cell's bit)
-    over the middle 60 % of each quarter of the 11 cells (module docstring, baud rate); 0 for none."""
+def quarter_signed(track: ToneTrack, data: list[int], times: list[float], speeds: list[float],
+                   baud: int) -> np.ndarray:
+    """Per byte, the smallest signed margin (2·mark fraction − 1, sign of the cell's bit) over
+    the middle 60 % of each quarter of the 11 cells (module docstring, baud rate)."""
     if not data:
-        return 0.0
+        return np.zeros(0)
     t = np.asarray(times, float)[:, None]
     quarter_s = 1.0 / (4 * baud * np.asarray(speeds, float))[:, None]
     q = np.arange(4 * BYTE_BITS)[None, :]
     frac, cov = track.fractions((t + (q + 0.2) * quarter_s).ravel(), (t + (q + 0.8) * quarter_s).ravel())
     bits = kcs_bits(bytes(data)).reshape(-1, BYTE_BITS).repeat(4, axis=1).astype(float)
     signed = np.where(cov.reshape(bits.shape) >= 0.5, (2 * frac.reshape(bits.shape) - 1) * (2 * bits - 1), 1.0)
-    return float(np.mean(signed.min(axis=1)))
+    return signed.min(axis=1)
+
+
+def _quarter_margin(track: ToneTrack, data: list[int], times: list[float], speeds: list[float],
+                    baud: int) -> float:
+    """The mean over bytes of :func:`quarter_signed`; 0 for none."""
+    return float(np.mean(quarter_signed(track, data, times, speeds, baud))) if data else 0.0
 
 
 def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: int | None = None,
@@ -341,20 +296,29 @@ def decode_kcs(samples: np.ndarray, rate_hz: float, *, channel: int = 0, baud: i
     if track is None:
         return KcsRead(channel, baud or 300, b"", np.zeros(0), (), np.zeros(0), 1.0, False, 0.0, 0.0, 0.0, ())
     if baud is None:
-        # both rates read; the one with the smaller share of framing errors and dropouts wins;
-        # on a tie 300 unless its bit margins are poor (module docstring)
         trials = {b: _uart(track, b, min_leader_s, max_dropout_s) for b in BAUDS}
+        m300 = _quarter_margin(track, trials[300][0], trials[300][1], trials[300][4], 300)
+    else:
+        trials, m300 = {baud: _uart(track, baud, min_leader_s, max_dropout_s)}, 0.0
+    return read_of_trials(channel, trials, m300)
+
+
+def read_of_trials(channel: int, trials: dict, m300: float) -> KcsRead:
+    """The :class:`KcsRead` of the UART's results at one baud rate, or at both (``trials``: baud
+    → :meth:`readchan.formats.kcs.uart.Uart.result`), with the 300-baud quarter-cell margin
+    ``m300`` (:func:`_quarter_margin`) for a tie."""
+    if len(trials) == 2:
+        # the one with the smaller share of framing errors and dropouts wins; on a tie 300
+        # unless its bit margins are poor (module docstring)
         share = {b: (len(u[2]) + len(u[6])) / max(1, len(u[0])) if u[0] else 2.0 for b, u in trials.items()}
         if share[300] == share[1200]:
-            m300 = _quarter_margin(track, trials[300][0], trials[300][1], trials[300][4], 300)
             m1200 = float(np.mean(trials[1200][3])) if trials[1200][3] else 0.0
             used = 300 if m300 >= 0.8 * m1200 else 1200
         else:
             used = min(share, key=share.get)
-        data, times, errors, margins, speeds, leader, lost = trials[used]
     else:
-        used = baud
-        data, times, errors, margins, speeds, leader, lost = _uart(track, used, min_leader_s, max_dropout_s)
+        (used,) = trials
+    data, times, errors, margins, speeds, leader, lost = trials[used]
     t = np.asarray(times, float)
     sp = float(np.median(speeds)) if speeds else 1.0
     end = float(t[-1] + BYTE_BITS / (used * speeds[-1])) if times else 0.0
