@@ -34,7 +34,7 @@ FORWARD = "forward"
 REVERSE = "reverse"
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class FrameCandidate:
     """One 80-bit word found at a sync word.
 

@@ -57,7 +57,7 @@ DAMAGE = ("gap", "damaged", "splice", "invalid_label")
 """Event kinds that may come from reading the signal with the wrong detector."""
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class LtcFrame:
     """One frame that passed every check.
 
@@ -90,7 +90,7 @@ class LtcFrame:
     first_bit: int
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class LtcEvent:
     """A discontinuity or a damaged stretch at capture time ``position_s`` (seconds)."""
 

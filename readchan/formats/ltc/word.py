@@ -80,7 +80,7 @@ def frames_per_day(per_second: int, drop_frame: bool) -> int:
     return 144 * DF_TEN_MINUTES if drop_frame else 86_400 * per_second
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)
 class Label:
     """A timecode label HH:MM:SS:FF."""
 
