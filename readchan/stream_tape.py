@@ -48,6 +48,7 @@ import numpy as np
 
 from readchan.formats.ltc.read import DAMAGE, FORMAT, LtcRead, read_from_bits
 from readchan.io.blocks import audio_info, read_span
+from readchan.io.capture import NonPhysicalSampleWarning, describe_outliers, display_path
 from readchan.linecode.biphase import TapeBits, bits_from_transitions
 from readchan.results import ChannelResult, Read, tape_channel_result
 from readchan.stream_tape_detect import TapeLevels, _repair, channel_levels, piece_transitions
@@ -69,6 +70,8 @@ class StreamedBits:
     bits: TapeBits
     cut_mismatches: int
     pieces: int
+    outliers: np.ndarray
+    """Positions (absolute samples) of the non-physical samples replaced before decoding."""
 
 
 COLUMN_CHUNK_BYTES = 64 << 20
@@ -187,10 +190,13 @@ def stream_bits(path: str | os.PathLike, channel: int, lv: TapeLevels, kind: str
     if margin < int(round(CHECK_S * rate)) + 1:
         raise ValueError(f"margin_s must exceed {CHECK_S} s, was {margin_s!r}")
     merger = _Merger(kind)
+    wild: list[np.ndarray] = []
     cuts = list(range(0, n, piece)) + [n]
     for k, (own_lo, own_hi) in enumerate(zip(cuts[:-1], cuts[1:])):
         lo, hi = max(0, own_lo - margin), min(n, own_hi + margin)
-        x, _ = _repair(np.ascontiguousarray(read_span(p, lo, hi)[:, channel]), lv.centre, lv.limit)
+        x, bad = _repair(np.ascontiguousarray(read_span(p, lo, hi)[:, channel]), lv.centre, lv.limit)
+        bad = bad + lo
+        wild.append(bad[(bad >= own_lo) & (bad < own_hi)])
         times = piece_transitions(x, lo, rate, lv, kind)
         del x
         tb = bits_from_transitions(times, kind=kind)
@@ -199,7 +205,8 @@ def stream_bits(path: str | os.PathLike, channel: int, lv: TapeLevels, kind: str
         merger.add(tb, times, lo_s, hi_s)
         if progress is not None:
             progress((k + 1) / (len(cuts) - 1))
-    return StreamedBits(merger.result(), merger.mismatches, len(cuts) - 1)
+    return StreamedBits(merger.result(), merger.mismatches, len(cuts) - 1,
+                        np.concatenate(wild) if wild else np.zeros(0, np.int64))
 
 
 def stream_ltc(path: str | os.PathLike, channel: int = 0, *, kind: str = "auto", piece_s: float = PIECE_S,
@@ -210,6 +217,10 @@ def stream_ltc(path: str | os.PathLike, channel: int = 0, *, kind: str = "auto",
     p = os.fspath(path)
     lv = channel_levels(p, channel, kind)
     sb = stream_bits(p, channel, lv, lv.kind, piece_s=piece_s, margin_s=margin_s)
+    if sb.outliers.size:
+        # decode_channel's warning for the same samples, once
+        warnings.warn(f"{display_path(p)}: channel {channel}: {describe_outliers(sb.outliers, audio_info(p).rate_hz)}",
+                      NonPhysicalSampleWarning, stacklevel=2)
     read = read_from_bits(sb.bits, channel=channel, min_margin=min_margin)
     mismatches = sb.cut_mismatches
     if kind == "auto" and (not read.frames or any(e.kind in DAMAGE for e in read.events)):

@@ -67,17 +67,18 @@ def _wild(x: np.ndarray, centre: float, limit: float) -> np.ndarray:
     return (dev >= capture_mod._OUTLIER_ABSOLUTE) | (dev > limit)
 
 
-def _repair(x: np.ndarray, centre: float, limit: float) -> tuple[np.ndarray, int]:
+def _repair(x: np.ndarray, centre: float, limit: float) -> tuple[np.ndarray, np.ndarray]:
     """``x`` with its non-physical samples interpolated from their neighbours in ``x``
-    (:func:`readchan.io.capture.repair_outliers`' rule with the channel's levels), and their count."""
+    (:func:`readchan.io.capture.repair_outliers`' rule with the channel's levels), and their
+    indices in ``x``."""
     wild = _wild(x, centre, limit)
     bad = np.flatnonzero(wild)
     if bad.size == 0:
-        return x, 0
+        return x, bad
     good = np.flatnonzero(~wild)
     y = x.copy()
     y[bad] = np.interp(bad, good, x[good]) if good.size else centre
-    return y, int(bad.size)
+    return y, bad
 
 
 def channel_levels(path: str, channel: int, kind: str = "auto") -> TapeLevels:

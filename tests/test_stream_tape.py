@@ -19,10 +19,10 @@ import soundfile as sf
 from timecode import Timecode
 
 from readchan import stream
-from readchan.channel import decode_capture
+from readchan.channel import DecodeSettings, decode_capture
 from readchan.formats.kcs.read import decode_kcs
 from readchan.formats.ltc.read import decode_ltc
-from readchan.io.capture import load_capture
+from readchan.io.capture import NonPhysicalSampleWarning, load_capture
 from readchan.stream_kcs import stream_kcs
 from readchan.stream_tape import stream_ltc
 from readchan.synth.kcs import KcsSpec, synthesize_kcs
@@ -229,3 +229,17 @@ def test_a_long_cassette_capture_through_iter_reads_gives_the_whole_file_read(tm
     whole = [r for res in decode_capture(load_capture(path)) for r in res.reads]
     assert [r.format for r in streamed] == [r.format for r in whole] == ["kcs"]
     _assert_same_kcs(streamed[0].payload, whole[0].payload)
+
+
+def test_non_physical_samples_are_repaired_as_the_whole_file_decode_repairs_them(tmp_path):
+    # a corrupted float WAV: three samples of 10⁶ full scale, far beyond the 10³ × level rule
+    x = synthesize_ltc(LtcSpec(start="05:00:00:00", duration_s=12.0, seed=4)).samples
+    x[[48_000, 200_000, 400_000]] = 1e6
+    path = tmp_path / "wild.wav"
+    sf.write(str(path), x, 48_000, subtype="FLOAT")
+    with pytest.warns(NonPhysicalSampleWarning):
+        whole = decode_capture(load_capture(path), DecodeSettings(format="ltc"))[0].reads[0].payload
+    with pytest.warns(NonPhysicalSampleWarning, match="3 non-physical samples"):
+        read, mismatches = stream_ltc(path, piece_s=3.0)
+    assert mismatches == 0
+    _assert_same_read(read, whole)
