@@ -13,6 +13,10 @@ frame starts at the same polarity (an even number of zeros per word, SMPTE ST 12
 minutes join into one continuous track.
 
     python scripts/bench_stream_tape.py --minutes 120 --runs 3
+    python scripts/bench_stream_tape.py --format kcs --minutes 20 --runs 3
+
+``--format kcs`` does the same for a cassette capture (1200 baud, invented random bytes, one
+block a minute) decoded by readchan.stream_kcs.
 """
 
 from __future__ import annotations
@@ -66,13 +70,43 @@ def write_ltc(path: Path, minutes: float, *, start: str = "10:00:00:00", piece_s
             k += 1
 
 
+def write_kcs(path: Path, minutes: float, *, block_s: float = 60.0, baud: int = 1200) -> None:
+    """A ``minutes``-long cassette capture of invented random bytes, one block of about
+    ``block_s`` (leader, bytes, trailer) written at a time."""
+    import numpy as np
+    import soundfile as sf
+
+    from readchan.synth.kcs import KcsSpec, synthesize_kcs
+
+    rng = np.random.default_rng(0)
+    per_block = int((block_s - 0.5) * baud / 11)
+    with sf.SoundFile(str(path), "w", samplerate=int(RATE_HZ), channels=1, subtype="PCM_16") as out:
+        for k in range(max(1, round(minutes * 60.0 / block_s))):
+            data = bytes(rng.integers(0, 256, per_block, dtype=np.uint8))
+            x = synthesize_kcs(KcsSpec(data=data, baud=baud, leader_s=0.3, quiet_s=0.1, seed=k)).samples
+            out.write(0.8 * x / np.max(np.abs(x)))
+
+
 def _peak_rss_mb() -> float:
+    """This process's peak resident set, MB: VmHWM (Linux; the ``ru_maxrss`` of a child keeps
+    the parent's peak from before the exec, which here wrote the capture), else ``ru_maxrss``."""
+    try:
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("VmHWM:"):
+                return int(line.split()[1]) / 1024.0
+    except OSError:
+        pass
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
 
 
 def _child(mode: str, path: str) -> dict:
     t0 = time.perf_counter()
-    if mode == "stream":
+    if mode == "kcs":
+        from readchan.stream_kcs import stream_kcs
+
+        read = stream_kcs(path, 0)
+        extra = {"bytes": len(read.data), "framing_errors": len(read.framing_errors), "baud": read.baud}
+    elif mode == "stream":
         from readchan.stream_tape import stream_ltc
 
         read, mismatches = stream_ltc(path, 0)
@@ -97,6 +131,7 @@ def main(argv: list[str] | None = None) -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--minutes", type=float, default=120.0)
     ap.add_argument("--runs", type=int, default=3)
+    ap.add_argument("--format", choices=("ltc", "kcs"), default="ltc")
     ap.add_argument("--dir", default="/tmp/bench_stream_tape")
     ap.add_argument("--child", nargs=2, metavar=("MODE", "PATH"), help=argparse.SUPPRESS)
     a = ap.parse_args(argv)
@@ -105,13 +140,13 @@ def main(argv: list[str] | None = None) -> None:
         return
     d = Path(a.dir)
     d.mkdir(parents=True, exist_ok=True)
-    path = d / f"ltc_{a.minutes:g}min.wav"
+    path = d / f"{a.format}_{a.minutes:g}min.wav"
     if not path.exists():
         t0 = time.perf_counter()
-        write_ltc(path, a.minutes)
+        (write_ltc if a.format == "ltc" else write_kcs)(path, a.minutes)
         print(f"wrote {path} ({path.stat().st_size / 1e6:.0f} MB) in {time.perf_counter() - t0:.0f} s")
     print(f"load average before: {os.getloadavg()}")
-    rows: dict[str, list[dict]] = {"stream": [], "baseline": []}
+    rows: dict[str, list[dict]] = {"stream" if a.format == "ltc" else "kcs": [], "baseline": []}
     for _ in range(a.runs):
         for mode in rows:
             out = subprocess.run([sys.executable, __file__, "--child", mode, str(path)], check=True,
@@ -119,7 +154,7 @@ def main(argv: list[str] | None = None) -> None:
             r = json.loads(out.stdout.strip().splitlines()[-1])
             rows[mode].append(r)
             print(json.dumps(r))
-    s, b = rows["stream"], rows["baseline"]
+    s, b = rows["stream" if a.format == "ltc" else "kcs"], rows["baseline"]
     ts, tb = statistics.median(r["seconds"] for r in s), statistics.median(r["seconds"] for r in b)
     print(f"median streamed decode {ts:.1f} s, peak RSS {statistics.median(r['peak_rss_mb'] for r in s):.0f} MB; "
           f"baseline (soundfile read + 8th-order sosfilt) {tb:.1f} s, peak RSS "
