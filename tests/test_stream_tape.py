@@ -243,3 +243,19 @@ def test_non_physical_samples_are_repaired_as_the_whole_file_decode_repairs_them
         read, mismatches = stream_ltc(path, piece_s=3.0)
     assert mismatches == 0
     _assert_same_read(read, whole)
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_the_compiled_open_parse_gives_the_plain_python_parse(seed):
+    # the streamed two-hour tape runs the biphase parse compiled (readchan._compiled); the
+    # reference is its own plain-Python function (same IEEE operations in the same order)
+    pytest.importorskip("numba")
+    from readchan.linecode import biphase
+
+    rng = np.random.default_rng(seed)
+    r = np.abs(rng.choice([0.5, 1.0], 3000) + rng.normal(0, 0.08, 3000))
+    zero, lone, half = (r - 1.0) ** 2, 0.5 + (r - 0.5) ** 2, 0.5 * (r - 0.5) ** 2
+    pair = np.concatenate(([np.inf], (r[:-1] + r[1:] - 1.0) ** 2 + 0.5 * ((r[:-1] - 0.5) ** 2 + (r[1:] - 0.5) ** 2)))
+    kinds, lead = biphase._open_viterbi.compile_now()._run(zero, lone, half, pair)
+    ref_kinds, ref_lead = biphase._open_viterbi.py_func(zero, lone, half, pair)
+    assert kinds.dtype == ref_kinds.dtype and np.array_equal(kinds, ref_kinds) and int(lead) == int(ref_lead)

@@ -37,6 +37,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.ndimage import median_filter
 
+from readchan._compiled import kernel
 from readchan.frontend.detect import Transitions, detect_head
 from readchan.errors import ParameterError
 from readchan.frontend.segment import segment
@@ -163,39 +164,57 @@ def open_parse(t: np.ndarray, period_s: np.ndarray) -> BitStream:
     """
     t = np.asarray(t, float)
     r = np.diff(t) / np.asarray(period_s, float)[:-1]
-    n = r.size
-    zero = ((r - 1.0) ** 2).tolist()
-    lone = (0.5 + (r - 0.5) ** 2).tolist()
-    half = (0.5 * (r - 0.5) ** 2).tolist()
-    pair = [float("inf")] + (((r[:-1] + r[1:] - 1.0) ** 2)
-                             + 0.5 * ((r[:-1] - 0.5) ** 2 + (r[1:] - 0.5) ** 2)).tolist()
-    move = [0] * (n + 1)        # 1: a 0 (one interval); 2: a 1 (two); 3: a lone half; 4: a leading half
-    cost = [0.0] * (n + 1)
+    zero = (r - 1.0) ** 2
+    lone = 0.5 + (r - 0.5) ** 2
+    half = 0.5 * (r - 0.5) ** 2
+    pair = np.empty(r.size)
+    if r.size:
+        pair[0] = np.inf
+        pair[1:] = ((r[:-1] + r[1:] - 1.0) ** 2) + 0.5 * ((r[:-1] - 0.5) ** 2 + (r[1:] - 0.5) ** 2)
+    kinds, lead = _open_viterbi(zero, lone, half, pair)
+    widths = np.where(kinds == 2, 2, 1)
+    first = lead + np.concatenate(([0], np.cumsum(widths)[:-1])).astype(np.int64)[:kinds.size]
+    return _assemble(t, first, kinds, r, np.asarray(period_s, float)[first])
+
+
+@kernel
+def _open_viterbi(zero, lone, half, pair):
+    """The recursion and backtrace of :func:`open_parse` over the move costs of the ``n``
+    intervals (``pair[i]``: intervals i − 1 and i as a 1; ``pair[0]`` infinite): the moves
+    (1: a 0, 2: a 1, 3: a lone half), in capture order, and 1 when the first interval is a
+    leading half (else 0)."""
+    n = zero.size
+    move = np.zeros(n + 1, np.int8)     # 1: a 0 (one interval); 2: a 1 (two); 3: a lone half; 4: a leading half
+    cost = np.zeros(n + 1)
     for i in range(1, n + 1):
         a = cost[i - 1] + zero[i - 1]
         b = cost[i - 1] + lone[i - 1]
-        c = cost[i - 2] + pair[i - 1] if i >= 2 else float("inf")
+        c = cost[i - 2] + pair[i - 1] if i >= 2 else np.inf
         if a <= b and a <= c:
-            cost[i], move[i] = a, 1
+            cost[i] = a
+            move[i] = 1
         elif c <= b:
-            cost[i], move[i] = c, 2
+            cost[i] = c
+            move[i] = 2
         else:
-            cost[i], move[i] = b, 3
+            cost[i] = b
+            move[i] = 3
         if i == 1 and half[0] < cost[1]:
-            cost[1], move[1] = half[0], 4
+            cost[1] = half[0]
+            move[1] = 4
     i = n - 1 if n >= 2 and cost[n - 1] + half[n - 1] < cost[n] else n
-    kinds, lead = [], 0
+    kinds = np.empty(n, np.int8)
+    m = 0
+    lead = 0
     while i > 0:
         mv = move[i]
         if mv == 4:
             lead = 1
         else:
-            kinds.append(mv)
+            kinds[m] = mv
+            m += 1
         i -= 2 if mv == 2 else 1
-    kinds.reverse()
-    widths = np.where(np.asarray(kinds, np.int8) == 2, 2, 1)
-    first = lead + np.concatenate(([0], np.cumsum(widths)[:-1])).astype(np.int64)[:len(kinds)]
-    return _assemble(t, first, kinds, r, np.asarray(period_s, float)[first])
+    return kinds[:m][::-1].copy(), lead
 
 
 LINE_FILL = 0.6
