@@ -238,8 +238,8 @@ def iter_reads(path: str | os.PathLike, settings: DecodeSettings = DecodeSetting
             seen.add((r.channel, round(r.start_s, 6)))
             yield r
     except _TapeRead:
-        # a tape read spans the tape: a timecode channel streamed as tape (readchan.stream_tape),
-        # other channels as before; its reads after those already given
+        # a tape read spans the tape: timecode and cassette channels streamed (readchan.stream_tape),
+        # card channels by stretches; its reads after those already given
         from readchan.stream_tape import tape_fallback_reads
 
         yield from (r for r in tape_fallback_reads(p, settings, chans) if (r.channel, round(r.start_s, 6)) not in seen)
