@@ -252,8 +252,9 @@ def _channel_family(path: str, channel: int, n_channels: int, n: int, rate_hz: f
     stretches), ``card`` when it has none."""
     from readchan import stream
     from readchan.channel import decode_channel
+    from readchan.survey import survey
 
-    gate = stream._gate(path, [channel], rate_hz, n, stream._no_progress)[0]
+    gate = survey(path, [channel], rate_hz, n, audio_info(path).subtype)[0].gate
     for span in gate.spans():
         own_lo, own_hi = stream._pieces(span, gate.energies(), gate.block, rate_hz)[0]
         settle = int(stream.SETTLE_S * rate_hz)
@@ -296,7 +297,7 @@ def tape_fallback_reads(path: str | os.PathLike, settings, channels: list[int]):
         elif fam == "card":
             try:
                 reads = list(stream._stretch_reads(p, [c], info.channels, info.frames, info.rate_hz, settings,
-                                                   stream._no_progress))
+                                                   stream._no_progress, None))
             except stream._TapeRead:
                 reads = None                # a later stretch holds a tape read: decoded whole
             if reads is not None:
