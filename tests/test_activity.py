@@ -90,3 +90,20 @@ def test_fed_in_chunks_the_gate_gives_the_same_energies_and_spans():
 def test_silence_has_no_span_and_constant_samples_none_either():
     assert active_spans(np.zeros(48_000), 48_000.0) == []
     assert active_spans(np.full(48_000, 0.3), 48_000.0) == []
+
+
+def test_a_capture_at_one_level_throughout_is_one_span():
+    # a tape track from end to end (or noise only): no block stands out, nothing may be left out
+    rng = np.random.default_rng(4)
+    gate = Activity(48_000.0)
+    gate.feed(rng.normal(0, 0.1, 480_000))
+    assert gate.spans() == [(0, 480_000)]
+
+
+def test_a_capture_quiet_for_less_than_a_fifth_is_one_span():
+    # 10 % quiet lead, then signal: the 20th-percentile floor is the signal's own level
+    rng = np.random.default_rng(5)
+    x = np.concatenate((rng.normal(0, 0.001, 48_000), rng.normal(0, 0.1, 432_000)))
+    gate = Activity(48_000.0)
+    gate.feed(x)
+    assert gate.spans() == [(0, x.size)]

@@ -149,8 +149,6 @@ def test_a_long_capture_through_iter_reads_gives_the_whole_file_timecode_read(tm
     _assert_same_read(streamed[0].payload, whole[0].payload)
 
 
-@pytest.mark.xfail(strict=True, reason="the activity gate (readchan/frontend/activity.py) gives no span for a "
-                   "capture that is signal throughout, so readchan.stream never reaches a tape stretch")
 def test_a_capture_that_is_timecode_throughout_is_read_through_iter_reads(forty_seconds):
     assert [r.format for r in stream.iter_reads(forty_seconds, whole_s=10)] == ["ltc"]
 

@@ -14,7 +14,11 @@ SNR, where decoding already fails, still raises a block's RMS by 1.5× (README, 
 widened by :data:`GUARD_S` on either side, so that the quiet before the first pulse and after
 the last (which the segmenter and the filters see) is in the span too.  When more than
 :data:`ALL_ACTIVE_FRACTION` of the blocks are active, or the floor is 0 while blocks differ,
-the whole capture is one span: the gate only ever leaves out stretches that are plainly idle.
+the whole capture is one span; so is a capture at one level throughout (no block active: a
+timecode track from end to end, or noise only, which the decoder's white-noise test then
+dismisses cheaply) and one whose floor stands above 1.5 × its quietest blocks' (2nd percentile:
+less than a fifth of it is quiet, so the floor is signal): the gate only ever leaves out
+stretches that are plainly idle.
 """
 
 from __future__ import annotations
@@ -55,8 +59,9 @@ def block_variances(x: np.ndarray, block: int, scale: float = 1.0) -> np.ndarray
     out = []
     if nb:
         rows = x[: nb * block].reshape(nb, block)
-        if rows.dtype != np.float32:
-            rows = rows.astype(np.float32)
+        # about each block's first sample (the variance does not change), so that a DC offset
+        # does not cancel away float32 digits: a constant block gives exactly 0
+        rows = rows.astype(np.float32) - rows[:, :1].astype(np.float32)
         s1 = rows.sum(axis=1, dtype=np.float64) / block
         s2 = np.einsum("ij,ij->i", rows, rows).astype(np.float64) / block
         out.append(np.maximum(s2 - s1 * s1, 0.0) * (scale * scale))
@@ -124,8 +129,10 @@ class Activity:
         if not floor > 0:
             return whole if np.any(e > 0) else []
         active = e > ACTIVE_RATIO * floor
-        if active.mean() > ALL_ACTIVE_FRACTION:
-            return whole
+        if active.mean() > ALL_ACTIVE_FRACTION or not active.any():
+            return whole        # mostly active, or one level throughout (a tape track, or all noise)
+        if floor > ACTIVE_RATIO * float(np.percentile(e, 2.0)):
+            return whole        # the floor is itself signal: less than a fifth of the capture is quiet
         return _spans_of(active, self.block, self.n, self.rate_hz)
 
 
