@@ -32,7 +32,8 @@ destroy a sentinel. Every correction is reported in :attr:`Frame.corrected` and
 
 from __future__ import annotations
 
-from typing import Iterable
+from functools import lru_cache
+from typing import Iterable, NamedTuple
 
 import numpy as np
 
@@ -140,12 +141,46 @@ def _best(seq: np.ndarray, fmt: CharFormat, limit: int | None) -> tuple[tuple, F
     """Best (key, frame) over both directions and every start, or None."""
     best = None
     n = seq.size
+    tab = _tables(fmt)
     for direction, ordered in (("forward", seq), ("reverse", seq[::-1])):
-        for start in _start_positions(ordered, fmt):
-            for key, found in _frames_from(ordered, int(start), fmt, limit, direction, n):
+        win = _window_codes(ordered, tab)
+        for start in _start_positions(ordered, fmt, win):
+            for key, found in _frames_from(ordered, int(start), fmt, limit, direction, n, win):
                 if best is None or key > best[0]:
                     best = (key, found)
     return best
+
+
+class _Tables(NamedTuple):
+    """Per-format constants of the framing: window width (bits), the start sentinel's window
+    code, the set bits of every window code, the parity bit each data code needs."""
+
+    width: int
+    start_window: int
+    ones: np.ndarray
+    weights: np.ndarray
+    parity: np.ndarray | None
+
+
+@lru_cache(maxsize=64)
+def _tables(fmt: CharFormat) -> _Tables:
+    width = fmt.bits_per_char
+    pattern = fmt.char_bits(fmt.start_code)
+    start_window = sum(int(b) << k for k, b in enumerate(pattern))
+    ones = np.array([bin(v).count("1") for v in range(1 << width)], dtype=np.int64)
+    weights = (np.int64(1) << np.arange(width, dtype=np.int64))[::-1].copy()
+    parity = None if fmt.parity == "none" else \
+        code_bits(np.arange(fmt.n_codes, dtype=np.int64), fmt)[:, fmt.data_bits].copy()
+    return _Tables(width, start_window, ones, weights, parity)
+
+
+def _window_codes(seq: np.ndarray, tab: _Tables) -> np.ndarray:
+    """Every window of ``width`` consecutive bits of ``seq`` as one code, its first bit least
+    significant (a character's data code, LSB first, with its parity bit above): one
+    convolution with the bit weights instead of a window matrix (int64)."""
+    if seq.size < tab.width:
+        return np.zeros(0, np.int64)
+    return np.convolve(seq.astype(np.int64), tab.weights, mode="valid")
 
 
 def _as_bits(bits) -> np.ndarray:
@@ -166,25 +201,29 @@ def _as_bits(bits) -> np.ndarray:
     return arr.astype(np.uint8)
 
 
-def _start_positions(seq: np.ndarray, fmt: CharFormat) -> np.ndarray:
+def _start_positions(seq: np.ndarray, fmt: CharFormat, win: np.ndarray | None = None) -> np.ndarray:
     """Bit positions worth trying as the first bit of the start sentinel.
 
     The first occurrence of the start sentinel's pattern anywhere, and the windows that hold
     the first one-bit after the stream's start or after a run of at least ``bits_per_char``
     zeros (for the first :data:`MAX_STARTS` such runs) and are the pattern exactly or, for a
-    format that can correct, one bit away from it (a damaged start sentinel).
+    format that can correct, one bit away from it (a damaged start sentinel).  ``win``: the
+    window codes of ``seq`` (:func:`_window_codes`), when the caller has them.
     """
-    width = fmt.bits_per_char
+    tab = _tables(fmt)
+    width = tab.width
     if seq.size < width:
         return np.zeros(0, dtype=np.int64)
-    pattern = fmt.char_bits(fmt.start_code)
-    distance = _hamming_windows(seq, pattern)
+    if win is None:
+        win = _window_codes(seq, tab)
+    distance = tab.ones[win ^ tab.start_window]
     exact = np.flatnonzero(distance == 0)
-    ones = np.flatnonzero(seq)
-    if exact.size == 0 and not can_correct(fmt):
+    correct = can_correct(fmt)
+    if exact.size == 0 and not correct:
         return exact
-    run_ends = np.concatenate([ones[:1], ones[1:][np.diff(ones) > width]])[:MAX_STARTS]
-    tolerance = 1 if can_correct(fmt) else 0
+    ones = np.flatnonzero(seq)
+    run_ends = np.concatenate([ones[:1], ones[1:][np.diff(ones) > width]])[:MAX_STARTS].tolist()
+    tolerance = 1 if correct else 0
     found = [exact[:1]]
     for first_one in run_ends:
         lo, hi = max(0, first_one - width + 1), min(first_one, distance.size - 1)
@@ -205,18 +244,22 @@ def _hamming_windows(seq: np.ndarray, pattern: np.ndarray) -> np.ndarray:
 
 
 def _frames_from(seq: np.ndarray, start: int, fmt: CharFormat, limit: int | None,
-                 direction: str, n_total: int) -> list[tuple[tuple, Frame]]:
-    """Every candidate read beginning at bit `start` of `seq` (one per plausible end)."""
-    width = fmt.bits_per_char
+                 direction: str, n_total: int, win: np.ndarray | None = None) -> list[tuple[tuple, Frame]]:
+    """Every candidate read beginning at bit `start` of `seq` (one per plausible end); ``win``:
+    the window codes of ``seq`` (:func:`_window_codes`), when the caller has them."""
+    tab = _tables(fmt)
+    width = tab.width
     n_avail = (seq.size - start) // width
     k = n_avail if limit is None else min(n_avail, limit)
-    block = seq[start:start + k * width].reshape(k, width)
-    weights = np.int64(1) << np.arange(fmt.data_bits, dtype=np.int64)
-    codes = block[:, :fmt.data_bits].astype(np.int64) @ weights
-    if fmt.parity == "none":
+    if win is None:
+        win = _window_codes(seq, tab)
+    chars = win[start:start + k * width:width]          # each character's bits as one code
+    if tab.parity is None:
+        codes = chars
         par_ok = np.ones(k, dtype=bool)
     else:
-        par_ok = block[:, fmt.data_bits] == code_bits(codes, fmt)[:, fmt.data_bits]
+        codes = chars & (fmt.n_codes - 1)
+        par_ok = (chars >> fmt.data_bits) == tab.parity[codes]
     pos = start + np.arange(k * width, dtype=np.int64).reshape(k, width)
     index = pos if direction == "forward" else (n_total - 1) - pos
 
