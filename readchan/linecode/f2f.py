@@ -87,7 +87,7 @@ class BitStream:
         if ok.size < run:
             return None
         win = np.convolve(ok, np.ones(run, np.int64), mode="valid") == run
-        hits = np.flatnonzero(win)
+        hits = win.nonzero()[0]
         if hits.size == 0:
             return None
         return int(hits[0]), int(hits[-1] + run + 1)
@@ -96,7 +96,7 @@ class BitStream:
         """The bits that lie within transitions ``a:b``, renumbered from transition ``a``."""
         keep = (self.first_transition >= a) & (self.first_transition < b - 1)
         if keep.any():
-            last = int(np.flatnonzero(keep)[-1])
+            last = int(keep.nonzero()[0][-1])
             width = 2 if self.bits[last] == 1 and not self.flags[last] & BIT_LONE_HALF else 1
             if self.first_transition[last] + width > b - 1:
                 keep[last] = False
@@ -168,7 +168,7 @@ def _assemble(t: np.ndarray, first: list[int], kind: list[int], r: np.ndarray, p
     kind_a = np.asarray(kind, np.int8)
     dist = np.abs(r - BOUNDARY) * 4.0
     margin = dist[first_a]
-    two = np.flatnonzero(kind_a == 2)
+    two = (kind_a == 2).nonzero()[0]
     margin[two] = np.minimum(margin[two], dist[first_a[two] + 1])
     lone = kind_a == 3
     margin[lone] = 0.0
@@ -290,7 +290,7 @@ def cell_positions(bits: np.ndarray) -> np.ndarray:
     mark): boundaries at k (k = 0..n, the last closes the final cell) and mid-cell transitions
     at k + ½ for each 1 bit (ISO/IEC 7811-2; SMPTE ST 12-1 for LTC).  Sorted float64."""
     b = np.asarray(bits, dtype=np.uint8).ravel()
-    return np.sort(np.concatenate((np.arange(b.size + 1, dtype=float), np.flatnonzero(b == 1) + 0.5)))
+    return np.sort(np.concatenate((np.arange(b.size + 1, dtype=float), (b == 1).nonzero()[0] + 0.5)))
 
 
 def f2f_positions(bits: np.ndarray, cell_m: float) -> np.ndarray:

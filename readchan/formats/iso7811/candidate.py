@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from readchan.formats.iso7811.charformat import CharFormat
-from readchan.formats.iso7811.codes import can_correct, lrc_code
+from readchan.formats.iso7811.codes import can_correct
 
 
 #: Clocking zeros, in characters, that must border a frame for it to count as bordered.
@@ -97,7 +97,7 @@ def build_candidate(seq: np.ndarray, start: int, codes: np.ndarray, par_ok: np.n
     n_data, n_rows, framed, lrc_read = _extent(seq, start, codes, fmt, end)
     data = codes[:n_data].copy()
     parity_ok = par_ok[:n_rows].copy()
-    syndrome = (lrc_code(data, fmt) ^ lrc_read) if lrc_read is not None else None
+    syndrome = (_xor(data) ^ lrc_read) if lrc_read is not None else None
 
     border = BORDER_CHARS * fmt.bits_per_char
     stop_bit = start + n_rows * fmt.bits_per_char
@@ -165,7 +165,7 @@ def _correct(data: np.ndarray, parity_ok: np.ndarray, syndrome: int | None, lrc_
     revised: tuple[int, ...] = ()
     parity_good = bool(parity_ok.all())
     n_data = data.size
-    fails = np.flatnonzero(~parity_ok)
+    fails = (~parity_ok).nonzero()[0]
     if framed and can_correct(fmt) and fails.size == 1:
         c = int(fails[0])
         fix = _single_error_fix(c, int(syndrome), data, lrc_read, fmt)
@@ -180,7 +180,7 @@ def _correct(data: np.ndarray, parity_ok: np.ndarray, syndrome: int | None, lrc_
                 data[c] = new_code
             else:
                 lrc_fixed = new_code  # Frame.lrc stays the LRC as read
-            syndrome = lrc_code(data, fmt) ^ lrc_fixed
+            syndrome = _xor(data) ^ lrc_fixed
             corrected = (c,)
             revised = (int(index[c, bit]),)
             parity_good = True
@@ -236,6 +236,12 @@ def _stray_ones(seq: np.ndarray, lo: int, hi: int, gap: int, cap: int) -> int:
             edge = pos
         pos += 1
     return count
+
+
+def _xor(codes: np.ndarray) -> int:
+    """The XOR of int64 character codes read from bits (so within the format's data bits):
+    :func:`readchan.formats.iso7811.codes.lrc_code` without its range check."""
+    return int(np.bitwise_xor.reduce(codes)) if codes.size else 0
 
 
 def frozen(arr: np.ndarray) -> np.ndarray:

@@ -110,7 +110,7 @@ MIN_REGULARITY = 0.75
 def suspect_bits(tr: Transitions, bs: BitStream) -> np.ndarray:
     """Bits holding a transition the detector had to guess at (any ``TR_*`` of
     :mod:`readchan.frontend.detect`), and the bit before each (the guess moves a cell boundary)."""
-    flagged = np.flatnonzero(tr.flags)
+    flagged = tr.flags.nonzero()[0]
     if flagged.size == 0 or len(bs) == 0:
         return np.zeros(0, np.int64)
     k = np.searchsorted(bs.first_transition, flagged, side="right") - 1

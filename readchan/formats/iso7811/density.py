@@ -127,7 +127,7 @@ def leading_zeros(bits: np.ndarray, first_bit: int, direction: str) -> int:
         before = b[:first_bit][::-1]
     else:
         before = b[first_bit + 1:]
-    ones = np.flatnonzero(before)
+    ones = before.nonzero()[0]
     return int(ones[0]) if ones.size else int(before.size)
 
 

@@ -187,20 +187,20 @@ def damage_evidence(tr: Transitions, bs: BitStream, *, clipped: bool = False) ->
     out = {k: np.zeros(0, np.int64) for k in EVIDENCE}
     if n == 0:
         return out
-    flagged = np.flatnonzero(tr.flags & GUESS_FLAGS)
+    flagged = (tr.flags & GUESS_FLAGS).nonzero()[0]
     if flagged.size:
         k = np.searchsorted(bs.first_transition, flagged, side="right") - 1
         out["guessed pulse"] = np.unique(np.concatenate((k, k - 1)).clip(0, n - 1))
-    out["parse break"] = np.flatnonzero(bs.flags)
+    out["parse break"] = bs.flags.nonzero()[0]
     st = bit_statistics(bs)
     for name, key, floor in (("odd interval", "deviation", ODD_INTERVAL), ("phase step", "phase", PHASE_STEP),
                              ("period step", "period", PERIOD_STEP)):
         floor = CLIPPED_FLOORS[name] if clipped else floor
         limit = max(floor, OUTLIER * float(st[key + "_scale"]))
-        out[name] = np.flatnonzero(st[key] > limit)
+        out[name] = (st[key] > limit).nonzero()[0]
     if tr.kind == "head" and len(tr):
         dev, scale = pulse_size(tr)
-        big = np.flatnonzero(dev > max(PULSE_SIZE, OUTLIER * scale))
+        big = (dev > max(PULSE_SIZE, OUTLIER * scale)).nonzero()[0]
         if big.size:
             k = np.searchsorted(bs.first_transition, big, side="right") - 1
             out["pulse size"] = np.unique(np.concatenate((k, k - 1)).clip(0, n - 1))

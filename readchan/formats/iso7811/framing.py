@@ -217,17 +217,17 @@ def _start_positions(seq: np.ndarray, fmt: CharFormat, win: np.ndarray | None = 
     if win is None:
         win = _window_codes(seq, tab)
     distance = tab.ones[win ^ tab.start_window]
-    exact = np.flatnonzero(distance == 0)
+    exact = (distance == 0).nonzero()[0]
     correct = can_correct(fmt)
     if exact.size == 0 and not correct:
         return exact
-    ones = np.flatnonzero(seq)
+    ones = seq.nonzero()[0]
     run_ends = np.concatenate([ones[:1], ones[1:][np.diff(ones) > width]])[:MAX_STARTS].tolist()
     tolerance = 1 if correct else 0
     found = [exact[:1]]
     for first_one in run_ends:
         lo, hi = max(0, first_one - width + 1), min(first_one, distance.size - 1)
-        found.append(lo + np.flatnonzero(distance[lo:hi + 1] <= tolerance))
+        found.append(lo + (distance[lo:hi + 1] <= tolerance).nonzero()[0])
     return np.unique(np.concatenate(found).astype(np.int64))
 
 
@@ -263,10 +263,10 @@ def _frames_from(seq: np.ndarray, start: int, fmt: CharFormat, limit: int | None
     pos = start + np.arange(k * width, dtype=np.int64).reshape(k, width)
     index = pos if direction == "forward" else (n_total - 1) - pos
 
-    clean = np.flatnonzero(((codes == fmt.end_code) & par_ok)[1:]) + 1
+    clean = ((codes == fmt.end_code) & par_ok)[1:].nonzero()[0] + 1
     stop = int(clean[0]) if clean.size else k
     near_end = (~par_ok[1:stop]) & (popcount(codes[1:stop] ^ fmt.end_code) <= 1)
-    ends = list(np.flatnonzero(near_end)[:MAX_SOFT_ENDS] + 1)
+    ends = list(near_end.nonzero()[0][:MAX_SOFT_ENDS] + 1)
     if clean.size:
         ends.append(stop)
     out = [build_candidate(seq, start, codes, par_ok, index, fmt, direction, int(e)) for e in ends]
