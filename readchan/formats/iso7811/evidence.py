@@ -117,15 +117,20 @@ def boundary_steps(start_s: np.ndarray, w: int = WINDOW) -> tuple[np.ndarray, np
         return phase, period
     y = b - b[0]
     slope, centre = _window_fits(y, w)
-    j = np.arange(w, n - w)
-    left, right = j - w, j + 1                      # window starts
+    # boundaries j = w … n−w−1 fit the windows starting at j − w (left) and j + 1 (right): slices
     half = 0.5 * (w - 1)
-    pred_l = centre[left] + slope[left] * (j - (left + half))
-    pred_r = centre[right] + slope[right] * (j - (right + half))
-    mean = 0.5 * (slope[left] + slope[right])
+    s_l, s_r = slope[:n - 2 * w], slope[w + 1:n - w + 1]
+    pred_l = centre[:n - 2 * w] + s_l * (w - half)              # j − (left + half) = w − half
+    pred_r = centre[w + 1:n - w + 1] + s_r * (-1.0 - half)      # j − (right + half) = −1 − half
+    mean = 0.5 * (s_l + s_r)
     ok = mean > 0
-    phase[j[ok]] = (pred_r[ok] - pred_l[ok]) / mean[ok]
-    period[j[ok]] = slope[right][ok] / slope[left][ok] - 1.0
+    if ok.all():
+        phase[w:n - w] = (pred_r - pred_l) / mean
+        period[w:n - w] = s_r / s_l - 1.0
+    else:
+        j = np.arange(w, n - w)[ok]
+        phase[j] = (pred_r[ok] - pred_l[ok]) / mean[ok]
+        period[j] = s_r[ok] / s_l[ok] - 1.0
     return phase, period
 
 
@@ -147,8 +152,12 @@ def bit_statistics(bs: BitStream) -> dict[str, np.ndarray | float]:
     r = bs.ratio
     dev_iv = np.minimum(np.abs(r - 0.5), np.abs(r - 1.0))
     deviation = np.zeros(n)
-    if r.size and n:
-        owner = (np.searchsorted(bs.first_transition, np.arange(r.size), side="right") - 1).clip(0, n - 1)
+    ft = bs.first_transition
+    if r.size and n and ft[0] == 0 and (n == 1 or (ft[1:] > ft[:-1]).all()):
+        # every interval belongs to the bit whose first interval is the last at or before it
+        np.maximum(np.maximum.reduceat(dev_iv, ft), 0.0, out=deviation)
+    elif r.size and n:
+        owner = (np.searchsorted(ft, np.arange(r.size), side="right") - 1).clip(0, n - 1)
         np.maximum.at(deviation, owner, dev_iv)
     phase, period = boundary_steps(bs.start_s)
     inner = slice(WINDOW, max(WINDOW, n - WINDOW))
@@ -166,6 +175,10 @@ def pulse_size(tr: Transitions) -> tuple[np.ndarray, float]:
     env = np.asarray(tr.envelope, float)
     a = np.abs(np.asarray(tr.amplitude, float))
     ok = (env > 0) & (a > 0)
+    if a.size and ok.all():                 # the usual case: every pulse measured
+        la = np.log(a / env)
+        dev = np.abs(la - median(la))
+        return dev, _scale(dev)
     la = np.zeros(a.size)
     la[ok] = np.log(a[ok] / env[ok])
     dev = np.abs(la - (median(la[ok]) if ok.any() else 0.0))
