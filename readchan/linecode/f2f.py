@@ -156,9 +156,46 @@ def _period_trace(t: np.ndarray, bs: BitStream) -> np.ndarray:
     ok = (bs.flags == 0) & (cell > 0)
     if ok.sum() < 4:
         return np.interp(t, bs.start_s, bs.period_s)
-    c = median_filter(cell[ok], size=min(9, int(ok.sum())), mode="nearest")
+    good = cell[ok]
+    if good.size >= 9 and _median9.ready(good.size):        # the same values, compiled
+        c = _median9(good)
+    else:
+        c = median_filter(good, size=min(9, int(ok.sum())), mode="nearest")
     mid = 0.5 * (bs.start_s[ok] + ends[ok])
     return np.interp(t, mid, c)
+
+
+@kernel
+def _median9(c: np.ndarray) -> np.ndarray:
+    """Running median over 9 values of ``c``, the ends repeated: the values of
+    ``scipy.ndimage.median_filter(c, size=9, mode="nearest")`` (a median of an odd count is
+    one of the values, so any exact selection gives the same) in one compiled loop."""
+    n = c.size
+    out = np.empty(n)
+    win = np.empty(9)
+    for k in range(9):                            # the first window, insertion-sorted
+        v = c[min(max(k - 4, 0), n - 1)]
+        m = k
+        while m > 0 and win[m - 1] > v:
+            win[m] = win[m - 1]
+            m -= 1
+        win[m] = v
+    out[0] = win[4]
+    for i in range(1, n):                         # slide: drop the value leaving, insert the one entering
+        old = c[max(i - 5, 0)]
+        v = c[min(i + 4, n - 1)]
+        m = 0
+        while win[m] != old:
+            m += 1
+        while m < 8 and win[m + 1] < v:
+            win[m] = win[m + 1]
+            m += 1
+        while m > 0 and win[m - 1] > v:
+            win[m] = win[m - 1]
+            m -= 1
+        win[m] = v
+        out[i] = win[4]
+    return out
 
 
 def _assemble(t: np.ndarray, first: list[int], kind: list[int], r: np.ndarray, period: np.ndarray) -> BitStream:
