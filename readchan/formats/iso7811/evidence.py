@@ -233,6 +233,8 @@ def damaged_characters(fr: Frame, evidence: dict[str, np.ndarray],
     found: dict[int, list[str]] = {int(c): ["corrected"] for c in corrected}
     for kind in EVIDENCE:
         bits = np.asarray(evidence.get(kind, ()), np.int64)
+        if bits.size == 0:
+            continue                    # most kinds are empty on a read: nothing to look up
         bits = bits[(bits >= 0) & (bits < n_bits)]
         for c in np.unique(owner[bits]).tolist():
             if c >= 0:
