@@ -23,6 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.ndimage import maximum_filter1d, percentile_filter
 
+from readchan.frontend.crossings import hysteresis_crossings
 from readchan.frontend.detect import _alternate, _lobe_peaks
 from readchan.io import capture as capture_mod
 from readchan.io.blocks import audio_info, iter_blocks
@@ -124,19 +125,7 @@ def line_crossings(y: np.ndarray, h: float, offset: int) -> np.ndarray:
     sample ``offset`` of the capture, in absolute samples: the absolute index of the sample
     before the crossing plus the interpolated fraction, one addition, as the whole-file
     decoder forms it (a piece-relative position shifted afterwards would round twice)."""
-    s = np.where(y > h, 1, np.where(y < -h, -1, 0)).astype(np.int8)
-    pos = np.where(s != 0, np.arange(s.size), 0)
-    np.maximum.accumulate(pos, out=pos)
-    state = s[pos]
-    change = np.flatnonzero((state[1:] != state[:-1]) & (state[:-1] != 0)) + 1
-    zc = np.flatnonzero(np.signbit(y[1:]) != np.signbit(y[:-1])) + 1
-    if change.size == 0 or zc.size == 0:
-        return np.zeros(0)
-    j = zc[np.clip(np.searchsorted(zc, change, side="right") - 1, 0, zc.size - 1)]
-    a, b = y[j - 1], y[j]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        frac = np.where(a != b, a / (a - b), 0.0)
-    return np.unique((j - 1 + offset) + frac)
+    return hysteresis_crossings(y, h, offset)
 
 
 def head_peaks(x: np.ndarray, floor: float, offset: int) -> np.ndarray:

@@ -15,8 +15,11 @@ from __future__ import annotations
 import numpy as np
 
 
-def hysteresis_crossings(y: np.ndarray, h: np.ndarray | float) -> np.ndarray:
-    """Sub-sample times (in samples) where ``y`` crosses zero and then passes ∓ ``h``."""
+def hysteresis_crossings(y: np.ndarray, h: np.ndarray | float, offset: int = 0) -> np.ndarray:
+    """Sub-sample times (in samples) where ``y`` crosses zero and then passes ∓ ``h``; with
+    ``offset``, ``y[0]`` is that sample of a capture and the times are absolute: the index of
+    the sample before the crossing plus the interpolated fraction, one addition (a relative
+    time shifted afterwards would round twice)."""
     y = np.asarray(y, float)
     s = np.where(y > h, 1, np.where(y < -h, -1, 0)).astype(np.int8)
     pos = np.where(s != 0, np.arange(s.size), 0)
@@ -30,4 +33,4 @@ def hysteresis_crossings(y: np.ndarray, h: np.ndarray | float) -> np.ndarray:
     a, b = y[j - 1], y[j]
     with np.errstate(divide="ignore", invalid="ignore"):
         frac = np.where(a != b, a / (a - b), 0.0)
-    return np.unique(j - 1 + frac)
+    return np.unique((j - 1 + offset) + frac)
